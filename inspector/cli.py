@@ -30,7 +30,7 @@ _TABLE_COLUMNS = (
 )
 
 
-def _load(args: argparse.Namespace):
+def load_model(args: argparse.Namespace):
     from inspector.loader import load_checkpoint
 
     return load_checkpoint(args.model, allow_pickle=args.allow_pickle)
@@ -44,9 +44,7 @@ def analysis_json(result) -> dict:
         "text": result.text,
         "tokens": list(result.tokens),
         "special": [bool(s) for s in result.special],
-        "prediction": None
-        if pred is None
-        else {"label": pred.label, "probabilities": pred.probabilities},
+        "prediction": None if pred is None else {"label": pred.label, "probabilities": pred.probabilities},
         "heads": result.heads_table(),
     }
 
@@ -70,7 +68,7 @@ def cmd_analyze(args: argparse.Namespace) -> int:
 
     if not args.text or not args.text.strip():
         raise HeadcountError("--text is empty")
-    lm = _load(args)
+    lm = load_model(args)
     result = analyze_sentence(lm, args.text)
     if args.save_attention:
         from inspector.export import save_npz
@@ -84,31 +82,37 @@ def cmd_analyze(args: argparse.Namespace) -> int:
     return 0
 
 
-def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
-        prog="headcount",
-        description="Look inside transformer-encoder classifiers, head by head (CPU, offline). "
-        "With no command, opens the window.",
+def add_model_command(sub: argparse._SubParsersAction, name: str, help_text: str) -> argparse.ArgumentParser:
+    """Add a sub-command whose first argument is a checkpoint folder."""
+    p = sub.add_parser(name, help=help_text, description=help_text)
+    p.add_argument("model", metavar="MODEL_DIR", help="checkpoint folder (config.json + safetensors)")
+    p.add_argument(
+        "--allow-pickle",
+        action="store_true",
+        help="read *.bin weights with torch's weights-only loader when no safetensors exist",
     )
-    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    return p
 
-    def model_command(name: str, help_text: str) -> argparse.ArgumentParser:
-        p = sub.add_parser(name, help=help_text)
-        p.add_argument("model", metavar="MODEL_DIR", help="checkpoint folder (config.json + safetensors)")
-        p.add_argument(
-            "--allow-pickle",
-            action="store_true",
-            help="read *.bin weights with torch's weights-only loader when no safetensors exist",
-        )
-        return p
 
-    p = model_command("analyze", "analyse one sentence: prediction and per-head metrics")
+def _register_analyze(sub: argparse._SubParsersAction) -> None:
+    p = add_model_command(sub, "analyze", "analyse one sentence: prediction and per-head metrics")
     p.add_argument("--text", required=True, help="the sentence to analyse")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
     p.add_argument(
         "--save-attention", metavar="FILE.npz", help="write array 'attention' [layers, heads, n, n]"
     )
     p.set_defaults(func=cmd_analyze)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="headcount",
+        description="Look inside transformer-encoder classifiers, head by head (CPU, offline). "
+        "With no command (or 'open MODEL_DIR'), opens the window.",
+    )
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    _register_analyze(sub)
+    # Each further command lives in its own module and registers itself here (one line each).
     return parser
 
 

@@ -96,9 +96,7 @@ def family_for(model_type: str) -> Family:
         return FAMILIES[model_type]
     except KeyError:
         known = ", ".join(sorted(FAMILIES))
-        raise HeadcountError(
-            f"model type '{model_type}' is not supported yet (supported: {known})"
-        ) from None
+        raise HeadcountError(f"model type '{model_type}' is not supported yet (supported: {known})") from None
 
 
 @dataclass

@@ -236,9 +236,7 @@ class HeadMetrics:
         return {name: getattr(self, name) for name in METRIC_NAMES}
 
 
-def head_metrics(
-    attention: np.ndarray, special: np.ndarray, mask: np.ndarray | None = None
-) -> HeadMetrics:
+def head_metrics(attention: np.ndarray, special: np.ndarray, mask: np.ndarray | None = None) -> HeadMetrics:
     """Compute every per-head metric at once.
 
     Parameters

@@ -30,9 +30,7 @@ def transformed_values(values: np.ndarray, out_weight: np.ndarray) -> np.ndarray
     return np.einsum("lnhd,lohd->lhno", values, w, optimize=True)
 
 
-def value_weighted_attention(
-    attention: np.ndarray, values: np.ndarray, out_weight: np.ndarray
-) -> np.ndarray:
+def value_weighted_attention(attention: np.ndarray, values: np.ndarray, out_weight: np.ndarray) -> np.ndarray:
     """Per-head value-weighted attention ``||a_ij f_h(x_j)||``.
 
     Parameters
@@ -56,9 +54,7 @@ def value_weighted_attention(
     return attention * norms[:, :, None, :]
 
 
-def layer_value_weighted(
-    attention: np.ndarray, values: np.ndarray, out_weight: np.ndarray
-) -> np.ndarray:
+def layer_value_weighted(attention: np.ndarray, values: np.ndarray, out_weight: np.ndarray) -> np.ndarray:
     """Layer-level value-weighted attention ``||sum_h a_ij^h f_h(x_j)||``.
 
     Parameters
