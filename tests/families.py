@@ -1,0 +1,49 @@
+"""Build small randomly initialised checkpoints of every supported family (test helper).
+
+Each checkpoint is saved with safetensors and the MiniLM WordPiece tokenizer, so
+the tests never need a download.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import torch
+import transformers
+
+SMALL = dict(hidden_size=32, num_hidden_layers=2, num_attention_heads=4, intermediate_size=64)
+
+CONFIGS = {
+    "bert": lambda v: transformers.BertConfig(vocab_size=v, **SMALL),
+    "roberta": lambda v: transformers.RobertaConfig(vocab_size=v, **SMALL, pad_token_id=0),
+    "xlm-roberta": lambda v: transformers.XLMRobertaConfig(vocab_size=v, **SMALL, pad_token_id=0),
+    "electra": lambda v: transformers.ElectraConfig(vocab_size=v, embedding_size=16, **SMALL),
+    "distilbert": lambda v: transformers.DistilBertConfig(
+        vocab_size=v, dim=32, n_layers=2, n_heads=4, hidden_dim=64
+    ),
+    "albert": lambda v: transformers.AlbertConfig(vocab_size=v, embedding_size=16, **SMALL),
+    "deberta-v2": lambda v: transformers.DebertaV2Config(
+        vocab_size=v, **SMALL, relative_attention=True, pos_att_type=["p2c", "c2p"], max_relative_positions=64
+    ),
+    "mpnet": lambda v: transformers.MPNetConfig(vocab_size=v, **SMALL),
+}
+
+LABELS = ["book_crossing", "cancel_booking", "timetable"]
+
+
+def build_checkpoint(family: str, folder: Path, tokenizer_dir: Path, task: str = "sequence") -> Path:
+    """Save a seeded random ``family`` model (classifier or bare encoder) into ``folder``."""
+    tok = transformers.AutoTokenizer.from_pretrained(str(tokenizer_dir), local_files_only=True)
+    config = CONFIGS[family](len(tok))
+    config.id2label = dict(enumerate(LABELS))
+    config.label2id = {v: k for k, v in config.id2label.items()}
+    torch.manual_seed(0)
+    auto = {
+        "sequence": transformers.AutoModelForSequenceClassification,
+        "token": transformers.AutoModelForTokenClassification,
+        "encoder": transformers.AutoModel,
+    }[task]
+    model = auto.from_config(config)
+    model.save_pretrained(str(folder))
+    tok.save_pretrained(str(folder))
+    return folder

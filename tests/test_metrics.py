@@ -1,0 +1,108 @@
+"""Per-head metrics against SciPy, closed forms and properties."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import scipy.stats
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from hypothesis.extra.numpy import arrays
+
+from inspector import metrics
+
+
+def _random_attention(rng: np.random.Generator, shape: tuple[int, ...]) -> np.ndarray:
+    logits = rng.normal(size=shape) * 2.0
+    e = np.exp(logits)
+    return e / e.sum(-1, keepdims=True)
+
+
+def test_row_entropy_matches_scipy():
+    """Reference: scipy.stats.entropy (natural log) on each row."""
+    rng = np.random.default_rng(1)
+    att = _random_attention(rng, (3, 4, 7, 7))
+    ours = metrics.row_entropy(att)
+    ref = scipy.stats.entropy(att, axis=-1)
+    np.testing.assert_allclose(ours, ref, rtol=1e-12, atol=1e-12)
+
+
+def test_head_entropy_with_padding_matches_scipy_on_real_part():
+    """Reference: scipy.stats.entropy over the real keys of real queries, averaged (padding never counted)."""
+    rng = np.random.default_rng(2)
+    n, real = 9, 6
+    att = np.zeros((2, 3, n, n))
+    att[..., :real] = _random_attention(rng, (2, 3, n, real))
+    mask = np.arange(n) < real
+    ours = metrics.head_entropy(att, mask)
+    ref = scipy.stats.entropy(att[:, :, :real, :real], axis=-1).mean(-1)
+    np.testing.assert_allclose(ours, ref, rtol=1e-12)
+    normed = metrics.head_entropy(att, mask, normalize=True)
+    np.testing.assert_allclose(normed, ref / math.log(real), rtol=1e-12)
+
+
+def test_entropy_extremes():
+    """Reference: closed form: a uniform row over n keys has entropy ln n, a one-hot row has 0."""
+    n = 11
+    uniform = np.full((n, n), 1.0 / n)
+    np.testing.assert_allclose(metrics.head_entropy(uniform), math.log(n), rtol=1e-12)
+    np.testing.assert_allclose(metrics.head_entropy(uniform, normalize=True), 1.0, rtol=1e-12)
+    assert metrics.head_entropy(np.eye(n)) == 0.0
+
+
+def test_mean_distance_uniform_closed_form():
+    """Reference: closed form. For uniform attention over n tokens,
+    sum_{i,j} |i-j| = 2 * sum_{d=1}^{n-1} d (n-d) = n (n^2-1) / 3; each row weighs keys by 1/n and we
+    average over n queries, so the mean distance is n (n^2-1) / 3 / n^2 = (n^2-1) / (3n)."""
+    for n in (1, 2, 5, 16, 33):
+        uniform = np.full((n, n), 1.0 / n)
+        np.testing.assert_allclose(metrics.mean_distance(uniform), (n * n - 1) / (3 * n), rtol=1e-12)
+
+
+def test_offset_shares_on_shift_matrices():
+    """Reference: closed form: a head that always looks at the previous token has prev share 1 and self share 0
+    (the first token, with no previous token, is not counted)."""
+    n = 6
+    prev = np.eye(n, k=-1)
+    prev[0, 0] = 1.0
+    assert metrics.offset_share(prev, -1) == 1.0
+    assert metrics.offset_share(prev, 1) == 0.0
+    np.testing.assert_allclose(metrics.offset_share(prev, 0), 1.0 / n)
+    np.testing.assert_allclose(metrics.confidence(prev), 1.0)
+
+
+def test_special_share_counts_only_flagged_keys():
+    """Reference: Clark et al. 2019, sec. 3: share of attention on [CLS]/[SEP]; closed form on a uniform head."""
+    n = 8
+    special = np.zeros(n, dtype=bool)
+    special[[0, n - 1]] = True
+    uniform = np.full((n, n), 1.0 / n)
+    np.testing.assert_allclose(metrics.share_on(uniform, special), 2.0 / n)
+
+
+_rows = st.integers(min_value=2, max_value=9).flatmap(
+    lambda n: arrays(np.float64, (2, n, n), elements=st.floats(0.0, 1.0, allow_nan=False))
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(raw=_rows, real=st.integers(min_value=1, max_value=9))
+def test_metric_bounds_property(raw, real):
+    """Reference: definitions (common practice, no source): entropy in [0, ln m], normalised entropy and
+    all shares in [0, 1], distance in [0, n-1], for any stochastic rows with padding."""
+    n = raw.shape[-1]
+    real = min(real, n)
+    mask = np.arange(n) < real
+    att = raw + 1e-9
+    att = att * mask
+    att = att / att.sum(-1, keepdims=True)
+    special = np.zeros(n, dtype=bool)
+    special[0] = True
+    m = metrics.head_metrics(att, special, mask)
+    eps = 1e-9
+    assert np.all(m.entropy >= -eps) and np.all(m.entropy <= math.log(real) + eps)
+    assert np.all((m.entropy_normalized >= -eps) & (m.entropy_normalized <= 1 + eps))
+    for share in (m.special_share, m.self_share, m.prev_share, m.next_share, m.confidence):
+        assert np.all((share >= -eps) & (share <= 1 + eps))
+    assert np.all((m.distance >= -eps) & (m.distance <= real - 1 + eps))

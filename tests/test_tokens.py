@@ -1,0 +1,51 @@
+"""Piece and word views of the token axis."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from inspector.analysis import analyze_sentence
+from inspector.tokens import apply_view, make_view
+
+
+def test_word_view_rule_on_a_hand_example():
+    """Reference: Clark et al. 2019, sec. 4.1 (sum over attended-to pieces, mean over attending pieces);
+    arithmetic by hand: pieces [CLS] lug ##gage [SEP], words [CLS] luggage [SEP].
+    Row 'luggage' = mean of the rows of 'lug' and '##gage'; column 'luggage' = sum of their columns."""
+    tokens = ["[CLS]", "lug", "##gage", "[SEP]"]
+    special = np.array([True, False, False, True])
+    word_ids = [None, 0, 0, None]
+    a = np.array(
+        [
+            [0.4, 0.2, 0.2, 0.2],
+            [0.1, 0.5, 0.3, 0.1],
+            [0.3, 0.3, 0.2, 0.2],
+            [0.25, 0.25, 0.25, 0.25],
+        ]
+    )
+    view = make_view(tokens, special, word_ids, words=True)
+    assert view.labels == ["[CLS]", "luggage", "[SEP]"]
+    merged = apply_view(a, view)
+    expected = np.array(
+        [
+            [0.4, 0.4, 0.2],
+            [0.2, 0.65, 0.15],  # mean of [.1, .8, .1] and [.3, .5, .2]
+            [0.25, 0.5, 0.25],
+        ]
+    )
+    np.testing.assert_allclose(merged, expected, atol=1e-12)
+    dropped = apply_view(a, make_view(tokens, special, word_ids, words=True, drop_special=True))
+    np.testing.assert_allclose(dropped, [[1.0]], atol=1e-12)
+
+
+def test_views_on_real_sentence_keep_rows_stochastic(minilm):
+    """Reference: definition of the merge rule (rows still sum to 1); all-MiniLM-L6-v2 WordPiece pieces."""
+    result = analyze_sentence(minilm, "Unaccompanied youngsters onboard the catamaran?")
+    assert any(t.startswith("##") for t in result.tokens)
+    for words in (False, True):
+        for drop in (False, True):
+            view = make_view(result.tokens, result.special, result.word_ids, words=words, drop_special=drop)
+            merged = apply_view(result.attention, view)
+            assert merged.shape[-1] == len(view.labels)
+            np.testing.assert_allclose(merged.sum(-1), 1.0, atol=1e-5)
+            assert not drop or not view.special.any()
