@@ -33,12 +33,20 @@ def atomic_write(path: Path, writer: Callable[[IO[bytes]], None]) -> Path:
             writer(fh)
             fh.flush()
             os.fsync(fh.fileno())
+        os.chmod(tmp, 0o666 & ~_umask())
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(OSError):
             os.unlink(tmp)
         raise
     return path
+
+
+def _umask() -> int:
+    """The process umask (read by setting and restoring it)."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def save_text(path: Path, text: str) -> Path:

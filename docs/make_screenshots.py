@@ -1,0 +1,185 @@
+"""Render screenshots of the window's main views offscreen into docs/.
+
+Run:  .venv/bin/python docs/make_screenshots.py
+
+Uses the bundled sample model and a sentence from the evaluation set that it
+misroutes. If the sample model has not been trained yet, a small randomly
+initialised classifier with the ferry intents is built in a temporary folder
+instead (its attention is random: the pictures then show the window, not a
+trained model), and the file names get a ``-random`` note in the log.
+"""
+
+from __future__ import annotations
+
+import csv
+import os
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))
+
+DOCS = ROOT / "docs"
+FALLBACK_SENTENCES = [
+    ("is the evening sailing to Quillhaven cancelled because of the storm", "disruption_status"),
+    ("can my two dogs come on the crossing with me", "pets_on_board"),
+    ("how much does it cost to take a van over on saturday", "vehicle_fares"),
+    ("I want to move my booking to the later sailing", "change_booking"),
+]
+
+
+def wait_until(app, condition, timeout: float = 120.0) -> None:
+    from PySide6.QtCore import QEventLoop
+
+    end = time.monotonic() + timeout
+    while not condition():
+        if time.monotonic() > end:
+            raise TimeoutError("the window did not get ready in time")
+        app.processEvents(QEventLoop.ProcessEventsFlag.AllEvents, 50)
+        time.sleep(0.01)
+    for _ in range(5):
+        app.processEvents()
+
+
+def random_classifier(folder: Path) -> Path:
+    """A 4-layer x 6-head random classifier over the ferry intents of the evaluation set."""
+    from bench.bench_ui import SAMPLE_SHAPE, random_bert_classifier
+    from inspector.paths import SAMPLE_EVAL
+
+    with SAMPLE_EVAL.open(newline="", encoding="utf-8") as fh:
+        labels = sorted({row["label"] for row in csv.DictReader(fh)})
+    return random_bert_classifier(folder, labels, seed=1, initializer_range=0.2, **SAMPLE_SHAPE)
+
+
+def misrouted_sentence(model_dir: Path) -> tuple[str, str]:
+    """The first evaluation sentence the model gets wrong (short enough for readable views)."""
+    from inspector.analysis import analyze_sentence
+    from inspector.loader import load_checkpoint
+    from inspector.paths import SAMPLE_EVAL
+
+    lm = load_checkpoint(model_dir)
+    with SAMPLE_EVAL.open(newline="", encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    for row in rows[:400]:
+        words = len(row["text"].split())
+        if 7 <= words <= 14:
+            pred = analyze_sentence(lm, row["text"]).prediction
+            if pred is not None and pred.label != row["label"]:
+                return row["text"], row["label"]
+    return FALLBACK_SENTENCES[0]
+
+
+def misrouted_fallback(model_dir: Path) -> tuple[str, str]:
+    """The first of the invented ferry sentences the (random) model misroutes."""
+    from inspector.analysis import analyze_sentence
+    from inspector.loader import load_checkpoint
+
+    lm = load_checkpoint(model_dir)
+    for text, label in FALLBACK_SENTENCES:
+        if analyze_sentence(lm, text).prediction.label != label:
+            return text, label
+    return FALLBACK_SENTENCES[0]
+
+
+def dark_palette():
+    from PySide6.QtGui import QColor, QPalette
+
+    pal = QPalette()
+    roles = {
+        QPalette.ColorRole.Window: "#202124",
+        QPalette.ColorRole.WindowText: "#e8e8e8",
+        QPalette.ColorRole.Base: "#17181a",
+        QPalette.ColorRole.AlternateBase: "#26272a",
+        QPalette.ColorRole.Text: "#e8e8e8",
+        QPalette.ColorRole.Button: "#2b2c2f",
+        QPalette.ColorRole.ButtonText: "#e8e8e8",
+        QPalette.ColorRole.Highlight: "#3d6fb4",
+        QPalette.ColorRole.HighlightedText: "#ffffff",
+        QPalette.ColorRole.ToolTipBase: "#2b2c2f",
+        QPalette.ColorRole.ToolTipText: "#e8e8e8",
+        QPalette.ColorRole.PlaceholderText: "#9a9a9a",
+        QPalette.ColorRole.Mid: "#3a3b3e",
+        QPalette.ColorRole.Dark: "#111111",
+        QPalette.ColorRole.Light: "#444548",
+    }
+    for role, colour in roles.items():
+        pal.setColor(role, QColor(colour))
+    return pal
+
+
+def main() -> int:
+    from PySide6.QtCore import QSettings
+
+    from inspector.paths import SAMPLE_MODEL
+    from ui.app import application
+    from ui.main_window import MainWindow
+
+    app = application()
+    tmp = tempfile.TemporaryDirectory()
+    if (SAMPLE_MODEL / "config.json").is_file():
+        model = SAMPLE_MODEL
+        text, expected = misrouted_sentence(model)
+    else:
+        print("sample model not found: using a random ferry-intent classifier (random attention)")
+        model = random_classifier(Path(tmp.name) / "ferry_intents_random")
+        text, expected = misrouted_fallback(model)
+    settings = QSettings(str(Path(tmp.name) / "settings.ini"), QSettings.Format.IniFormat)
+    window = MainWindow(settings)
+    window.resize(1440, 900)
+    window.show()
+    window.open_sentence(text, expected)
+    window.open_model(model)
+    page = window.sentence_page
+    wait_until(app, lambda: page.state.ready and not window.is_busy())
+    page.select_head(min(2, page.state.analysis.num_layers - 1), min(3, page.state.analysis.num_heads - 1))
+    wait_until(app, lambda: not window.is_busy())
+
+    shots = {
+        "window.png": window,
+        "head_mosaic.png": page.mosaic_panel,
+        "close_up.png": page.closeup_panel,
+        "token_arcs.png": page.arcs_panel,
+        "relevance_band.png": page.band_panel,
+        "sentence_bar.png": page.bar,
+    }
+    for name, widget in shots.items():
+        widget.grab().save(str(DOCS / name))
+        print(f"wrote docs/{name}")
+
+    page.links_box.setCurrentIndex(1)  # every link above a threshold
+    page.threshold_box.setValue(0.25)
+    wait_until(app, lambda: not window.is_busy())
+    page.arcs_panel.grab().save(str(DOCS / "token_arcs_threshold.png"))
+    page.words_action.setChecked(True)
+    page.special_action.setChecked(True)
+    page.source_box.setCurrentIndex(2)  # rollout
+    wait_until(app, lambda: not window.is_busy())
+    page.closeup_panel.grab().save(str(DOCS / "close_up_rollout_words.png"))
+    print("wrote docs/token_arcs_threshold.png, docs/close_up_rollout_words.png")
+
+    page.words_action.setChecked(False)
+    page.special_action.setChecked(False)
+    page.source_box.setCurrentIndex(0)
+    page.links_box.setCurrentIndex(0)
+    app.setPalette(dark_palette())
+    wait_until(app, lambda: not window.is_busy())
+    window.grab().save(str(DOCS / "window_dark.png"))
+    print("wrote docs/window_dark.png")
+
+    bad = Path(tmp.name) / "not_a_model"
+    bad.mkdir()
+    app.setPalette(app.style().standardPalette())
+    window.open_model(bad)
+    wait_until(app, lambda: window.message_bar.text() != "")
+    window.grab().save(str(DOCS / "window_bad_folder.png"))
+    print("wrote docs/window_bad_folder.png")
+    window.close()
+    tmp.cleanup()
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -1,0 +1,471 @@
+"""The main window: page navigation, menus, model opening, messages and the busy state.
+
+Pages sit in a stack beside a narrow navigation list (:meth:`MainWindow.add_page`),
+so later pages (corpus results, one misfire explained) slot in next to the
+sentence page. Models load and sentences are analysed on background threads;
+the window keeps answering while they run.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtCore import QSettings, Qt, QTimer, Signal
+from PySide6.QtGui import QAction, QActionGroup, QCloseEvent, QDragEnterEvent, QDropEvent, QKeySequence
+from PySide6.QtWidgets import (
+    QFileDialog,
+    QHBoxLayout,
+    QLabel,
+    QListWidget,
+    QMainWindow,
+    QMessageBox,
+    QProgressBar,
+    QStackedWidget,
+    QVBoxLayout,
+    QWidget,
+)
+
+from inspector.analysis import SentenceAnalysis, analyze_sentence
+from inspector.figures import CAUTION
+from inspector.loader import LoadedModel, load_checkpoint
+from inspector.metrics import METRIC_LABELS, METRIC_NAMES
+from ui.export_actions import EXPORT_KINDS, ExportController
+from ui.panel import MessageBar
+from ui.sentence_page import SentencePageWidget
+from ui.state import SOURCES
+from ui.worker import JobRunner
+
+RECENT_KEY = "recent/models"
+RECENT_MAX = 8
+STARTER_SENTENCE = "can I bring my dog on the evening crossing to Orlestow"
+"""Shown when a model opens with an empty entry (from the project's ferry-operator scenario)."""
+
+SHORTCUTS_HELP = """<table cellspacing=4>
+<tr><td><b>Ctrl+O</b></td><td>Open a model folder</td></tr>
+<tr><td><b>Ctrl+L</b></td><td>Go to the sentence entry</td></tr>
+<tr><td><b>Ctrl+1 \u2026 Ctrl+4</b></td><td>Go to head mosaic, close-up, token arcs, relevance band</td></tr>
+<tr><td><b>Arrow keys</b></td><td>In the mosaic: move the selected head</td></tr>
+<tr><td><b>Alt+Arrow keys</b></td><td>Move the selected head from anywhere</td></tr>
+<tr><td><b>Up/Down, Left/Right</b></td><td>In the close-up / token arcs: move the query token</td></tr>
+<tr><td><b>Alt+1 \u2026 Alt+5</b></td><td>Close-up shows: head, layer mean, rollout, flow, value-weighted</td></tr>
+<tr><td><b>Ctrl+M</b></td><td>Next meter metric</td></tr>
+<tr><td><b>Ctrl+Shift+W / H</b></td><td>Words instead of pieces / hide special tokens</td></tr>
+<tr><td><b>Ctrl+E</b></td><td>Export the view that has the keyboard focus</td></tr>
+<tr><td><b>Ctrl+Shift+E</b></td><td>Export the one-page figure sheet (PDF)</td></tr>
+</table>"""
+
+
+INTERACTIVE_TORCH_THREADS = 1
+"""Intra-op threads for the per-keystroke analysis (set in the worker thread only)."""
+
+
+def analyse_interactively(lm: LoadedModel, text: str) -> SentenceAnalysis:
+    """Analyse one sentence for the window, on the calling (worker) thread.
+
+    One torch thread: a single short sentence gains little from more, and on a
+    2-core laptop a second spinning thread competes with the GUI thread for the
+    cores; measured in bench/bench_ui.py (7-8 ms instead of ~700 ms for the
+    sample-sized model on a loaded 2-core machine). ``torch.set_num_threads``
+    acts on the calling thread here (OpenMP), so other jobs keep their setting.
+    """
+    import torch
+
+    if torch.get_num_threads() != INTERACTIVE_TORCH_THREADS:
+        torch.set_num_threads(INTERACTIVE_TORCH_THREADS)
+    return analyze_sentence(lm, text)
+
+
+class MainWindow(QMainWindow):
+    """Headcount's window."""
+
+    model_loaded = Signal(object)
+    load_failed = Signal(str)
+
+    def __init__(self, settings: QSettings | None = None, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.setWindowTitle("Headcount")
+        self.setAcceptDrops(True)
+        self.settings = settings if settings is not None else QSettings("Headcount", "Headcount")
+        self.runner = JobRunner(self)
+        self.lm: LoadedModel | None = None
+        self._loading: Path | None = None
+
+        self.message_bar = MessageBar(self)
+        self.sentence_page = SentencePageWidget(self.runner, self)
+        self.exporter = ExportController(self, self.sentence_page.state, self.runner, self.settings)
+
+        self.nav = QListWidget(self)
+        self.nav.setAccessibleName("Pages")
+        self.nav.setFixedWidth(104)
+        self.nav.setStyleSheet(
+            "QListWidget { border: none; background: transparent; } QListWidget::item { padding: 7px 8px; }"
+        )
+        self.pages = QStackedWidget(self)
+        self.nav.currentRowChanged.connect(self.pages.setCurrentIndex)
+        self.add_page("Sentence", self.sentence_page)
+
+        body = QHBoxLayout()
+        body.setContentsMargins(0, 0, 0, 0)
+        body.setSpacing(0)
+        body.addWidget(self.nav)
+        body.addWidget(self.pages, 1)
+        central = QWidget(self)
+        outer = QVBoxLayout(central)
+        outer.setContentsMargins(6, 6, 6, 0)
+        outer.setSpacing(4)
+        outer.addWidget(self.message_bar)
+        outer.addLayout(body, 1)
+        self.setCentralWidget(central)
+
+        self.model_label = QLabel("no model", self)
+        self.busy_label = QLabel("", self)
+        self.busy_bar = QProgressBar(self)
+        self.busy_bar.setRange(0, 0)
+        self.busy_bar.setFixedWidth(120)
+        self.busy_bar.setMaximumHeight(14)
+        self.busy_bar.hide()
+        self.statusBar().addPermanentWidget(self.busy_label)
+        self.statusBar().addPermanentWidget(self.busy_bar)
+        self.statusBar().addPermanentWidget(self.model_label)
+
+        self._build_menus()
+        page = self.sentence_page
+        page.bar.sentence_changed.connect(self.analyse)
+        page.status.connect(lambda text: self.statusBar().showMessage(text, 6000))
+        self.runner.busy_changed.connect(self._busy_changed)
+        self.exporter.finished.connect(self._export_done)
+        self.exporter.failed.connect(lambda text: self.show_error(f"Export failed: {text}"))
+        self.resize(1360, 880)
+
+    # -- pages -------------------------------------------------------------------------------------
+    def add_page(self, title: str, widget: QWidget) -> int:
+        """Add a page to the navigation; returns its index."""
+        index = self.pages.addWidget(widget)
+        self.nav.addItem(title)
+        if self.nav.currentRow() < 0:
+            self.nav.setCurrentRow(index)
+        return index
+
+    def show_page(self, widget: QWidget) -> None:
+        self.nav.setCurrentRow(self.pages.indexOf(widget))
+
+    # -- menus -------------------------------------------------------------------------------------
+    def _action(self, menu, text: str, slot, shortcut: str | None = None, tip: str = "") -> QAction:
+        action = QAction(text, self)
+        if shortcut:
+            action.setShortcut(QKeySequence(shortcut))
+        if tip:
+            action.setStatusTip(tip)
+        action.triggered.connect(slot)
+        menu.addAction(action)
+        return action
+
+    def _build_menus(self) -> None:
+        bar = self.menuBar()
+        page = self.sentence_page
+        file_menu = bar.addMenu("&File")
+        self._action(
+            file_menu, "&Open model folder\u2026", self.choose_model, "Ctrl+O", "Open a checkpoint folder"
+        )
+        self.recent_menu = file_menu.addMenu("Open &recent")
+        self._fill_recent()
+        file_menu.addSeparator()
+        self._action(file_menu, "&Quit", self.close, "Ctrl+Q")
+
+        export_menu = bar.addMenu("E&xport")
+        self._action(export_menu, "Export &focused view\u2026", self.export_focused, "Ctrl+E")
+        export_menu.addSeparator()
+        accel = {
+            "mosaic": "&Head mosaic\u2026",
+            "closeup": "&Close-up\u2026",
+            "arcs": "Token &arcs\u2026",
+            "relevance": "&Relevance band\u2026",
+        }
+        for kind, text in accel.items():
+            self._action(
+                export_menu,
+                text,
+                lambda _c=False, k=kind: self.exporter.ask(k),
+                tip=f"{EXPORT_KINDS[kind]} as PNG, SVG or PDF, with a CSV of its numbers",
+            )
+        export_menu.addSeparator()
+        self._action(
+            export_menu,
+            "Figure &sheet (PDF)\u2026",
+            lambda: self.exporter.ask("sheet"),
+            "Ctrl+Shift+E",
+            "One page: head mosaic, close-up and relevance band",
+        )
+
+        view_menu = bar.addMenu("&View")
+        view_menu.addAction(page.words_action)
+        view_menu.addAction(page.special_action)
+        view_menu.addSeparator()
+        source_menu = view_menu.addMenu("Close-up &shows")
+        group = QActionGroup(self)
+        for i, (_key, text) in enumerate(SOURCES.items()):
+            act = self._action(
+                source_menu, text, lambda _c=False, i=i: page.source_box.setCurrentIndex(i), f"Alt+{i + 1}"
+            )
+            act.setCheckable(True)
+            act.setChecked(i == 0)
+            group.addAction(act)
+            page.source_box.currentIndexChanged.connect(lambda j, a=act, i=i: a.setChecked(i == j))
+        metric_menu = view_menu.addMenu("&Meter metric")
+        self._action(metric_menu, "&Next metric", self.next_metric, "Ctrl+M")
+        metric_menu.addSeparator()
+        for i, name in enumerate(METRIC_NAMES):
+            self._action(
+                metric_menu, METRIC_LABELS[name], lambda _c=False, i=i: page.metric_box.setCurrentIndex(i)
+            )
+
+        go_menu = bar.addMenu("&Go")
+        self._action(go_menu, "&Sentence entry", self.focus_entry, "Ctrl+L")
+        targets = [
+            ("Head &mosaic", page.grid),
+            ("&Close-up", page.closeup),
+            ("Token &arcs", page.arcs),
+            ("&Relevance band", page.band),
+        ]
+        for i, (text, widget) in enumerate(targets):
+            self._action(go_menu, text, lambda _c=False, w=widget: self._focus(w), f"Ctrl+{i + 1}")
+        go_menu.addSeparator()
+        moves = [
+            ("Layer &up", "Alt+Up", -1, 0),
+            ("Layer &down", "Alt+Down", 1, 0),
+            ("&Previous head", "Alt+Left", 0, -1),
+            ("&Next head", "Alt+Right", 0, 1),
+        ]
+        for text, key, dl, dh in moves:
+            self._action(go_menu, text, lambda _c=False, dl=dl, dh=dh: page.move_head(dl, dh), key)
+        self._action(go_menu, "Previous &query token", lambda: page.move_query(-1), "Alt+Shift+Left")
+        self._action(go_menu, "Next q&uery token", lambda: page.move_query(1), "Alt+Shift+Right")
+
+        help_menu = bar.addMenu("&Help")
+        self._action(help_menu, "&Keyboard shortcuts", self.show_shortcuts, "F1")
+        self._action(help_menu, "What &attention can and cannot tell", self.show_caution)
+
+    def _focus(self, widget: QWidget) -> None:
+        self.show_page(self.sentence_page)
+        widget.setFocus(Qt.FocusReason.ShortcutFocusReason)
+
+    def focus_entry(self) -> None:
+        self.show_page(self.sentence_page)
+        self.sentence_page.bar.entry.setFocus(Qt.FocusReason.ShortcutFocusReason)
+        self.sentence_page.bar.entry.selectAll()
+
+    def next_metric(self) -> None:
+        box = self.sentence_page.metric_box
+        box.setCurrentIndex((box.currentIndex() + 1) % box.count())
+
+    def show_shortcuts(self) -> None:
+        QMessageBox.information(self, "Keyboard shortcuts", SHORTCUTS_HELP)
+
+    def show_caution(self) -> None:
+        QMessageBox.information(
+            self,
+            "What attention can and cannot tell",
+            f"{CAUTION}\n\nA head's weights say which tokens it mixed in, not how much that mattered for the "
+            "decision. Check a reading against gradient- or occlusion-based evidence before relying on it.",
+        )
+
+    # -- models ------------------------------------------------------------------------------------
+    def choose_model(self) -> None:
+        start = str(self.settings.value("open/folder", str(Path.home())))
+        folder = QFileDialog.getExistingDirectory(self, "Open a model folder", start)
+        if folder:
+            self.settings.setValue("open/folder", str(Path(folder).parent))
+            self.open_model(folder)
+
+    def open_model(self, folder: str | Path, *, allow_pickle: bool = False) -> None:
+        """Load a checkpoint folder in the background; errors appear in the message bar."""
+        path = Path(folder).expanduser()
+        self._loading = path
+        self.message_bar.hide()
+        self.busy_label.setText(f"Opening {path.name}\u2026")
+        if self.lm is None:
+            self.sentence_page.clear(f"Opening {path.name}\u2026")
+        self.runner.submit(
+            "load",
+            lambda: load_checkpoint(path, allow_pickle=allow_pickle),
+            self._model_ready,
+            lambda text: self._model_failed(path, text),
+        )
+
+    def _model_ready(self, lm: object) -> None:
+        assert isinstance(lm, LoadedModel)
+        self.lm = lm
+        self._loading = None
+        self.runner.cancel("analysis")
+        self.runner.cancel("flow")
+        self.sentence_page.set_model(lm)
+        self.setWindowTitle(f"{lm.name} \u2014 Headcount")
+        kind = {"sequence-classification": f"{len(lm.labels)} labels", "encoder": "bare encoder"}.get(
+            lm.task, lm.task
+        )
+        self.model_label.setText(
+            f"{lm.name} \u00b7 {lm.model_type} \u00b7 {lm.num_layers} layers \u00d7 "
+            f"{lm.num_heads} heads \u00b7 {kind}"
+        )
+        self._remember(lm.path)
+        entry = self.sentence_page.bar.entry
+        if not entry.text().strip():
+            entry.blockSignals(True)
+            entry.setText(STARTER_SENTENCE)
+            entry.blockSignals(False)
+        self.analyse(entry.text())
+        self.model_loaded.emit(lm)
+
+    def _model_failed(self, path: Path, text: str) -> None:
+        self._loading = None
+        self.show_error(f"Could not open {path.name}: {text}")
+        if self.lm is None:
+            self.sentence_page.clear("No model open \u2014 use File \u203a Open model folder (Ctrl+O)")
+        self.load_failed.emit(text)
+
+    def show_error(self, text: str) -> None:
+        self.message_bar.show_message(text)
+
+    # -- sentences ---------------------------------------------------------------------------------
+    def analyse(self, text: str) -> None:
+        """Analyse ``text`` with the open model in the background (newest request wins)."""
+        page = self.sentence_page
+        page.bar.timer.stop()
+        lm = self.lm
+        if lm is None:
+            return
+        if not text.strip():
+            self.runner.cancel("analysis")
+            page.set_model(lm)
+            return
+        self.runner.submit(
+            "analysis",
+            lambda: analyse_interactively(lm, text),
+            lambda result: self._analysis_ready(lm, result),
+            lambda msg: self.show_error(f"Could not analyse the sentence: {msg}"),
+        )
+
+    def _analysis_ready(self, lm: LoadedModel, analysis: object) -> None:
+        if lm is not self.lm:
+            return  # the model changed while this sentence was being analysed
+        self.sentence_page.apply_analysis(analysis)
+
+    def open_sentence(self, text: str, expected: str | None = None) -> None:
+        """Load ``text`` into the sentence page with its expected label set, and analyse it."""
+        page = self.sentence_page
+        self.show_page(page)
+        page.state.expected = expected
+        if self.lm is not None and expected is not None and not page.bar.set_expected(expected):
+            self.show_error(f"The model has no label '{expected}'")
+        elif expected is None:
+            page.bar.set_expected(None)
+        page.bar.entry.blockSignals(True)
+        page.bar.entry.setText(text)
+        page.bar.entry.blockSignals(False)
+        self.analyse(text)
+
+    # -- export ------------------------------------------------------------------------------------
+    def export_focused(self) -> None:
+        page = self.sentence_page
+        kinds = {
+            id(page.grid): "mosaic",
+            id(page.closeup): "closeup",
+            id(page.arcs): "arcs",
+            id(page.band): "relevance",
+        }
+        widget = self.focusWidget()
+        self.exporter.ask(kinds.get(id(widget), "closeup"))
+
+    def _export_done(self, paths: list) -> None:
+        names = " and ".join(Path(p).name for p in paths)
+        self.statusBar().showMessage(f"Saved {names} in {Path(paths[0]).parent}", 8000)
+
+    # -- busy state --------------------------------------------------------------------------------
+    def is_busy(self) -> bool:
+        return self.runner.is_busy()
+
+    def _busy_changed(self, channel: str, busy: bool) -> None:
+        active = self.runner.is_busy()
+        self.busy_bar.setVisible(active)
+        if not active:
+            self.busy_label.setText("")
+        elif busy and channel == "analysis" and self._loading is None:
+            self.busy_label.setText("Analysing\u2026")
+        elif busy and channel == "flow":
+            self.busy_label.setText("Computing flow\u2026")
+        elif busy and channel == "export":
+            self.busy_label.setText("Exporting\u2026")
+
+    # -- recent models -----------------------------------------------------------------------------
+    def recent_models(self) -> list[str]:
+        value = self.settings.value(RECENT_KEY, [])
+        if isinstance(value, str):
+            value = [value]
+        return [str(v) for v in (value or [])]
+
+    def _remember(self, path: Path) -> None:
+        entry = str(Path(path).resolve())
+        recent = [entry] + [p for p in self.recent_models() if p != entry]
+        self.settings.setValue(RECENT_KEY, recent[:RECENT_MAX])
+        self.settings.sync()
+        self._fill_recent()
+
+    def _fill_recent(self) -> None:
+        self.recent_menu.clear()
+        recent = self.recent_models()
+        for i, path in enumerate(recent):
+            label = f"&{i + 1}  {Path(path).name}   ({path})" if i < 9 else path
+            act = self.recent_menu.addAction(label)
+            act.triggered.connect(lambda _c=False, p=path: self.open_model(p))
+        if not recent:
+            self.recent_menu.addAction("(none yet)").setEnabled(False)
+        else:
+            self.recent_menu.addSeparator()
+            self.recent_menu.addAction("&Clear list", self._clear_recent)
+
+    def _clear_recent(self) -> None:
+        self.settings.setValue(RECENT_KEY, [])
+        self._fill_recent()
+
+    # -- drag and drop -----------------------------------------------------------------------------
+    @staticmethod
+    def _dropped_folder(event: QDragEnterEvent | QDropEvent) -> Path | None:
+        for url in event.mimeData().urls() if event.mimeData().hasUrls() else []:
+            path = Path(url.toLocalFile())
+            if url.isLocalFile() and path.is_dir():
+                return path
+        return None
+
+    def dragEnterEvent(self, event: QDragEnterEvent) -> None:
+        if self._dropped_folder(event) is not None:
+            event.acceptProposedAction()
+        else:
+            event.ignore()
+
+    def dropEvent(self, event: QDropEvent) -> None:
+        folder = self._dropped_folder(event)
+        if folder is not None:
+            event.acceptProposedAction()
+            self.open_model(folder)
+
+    def keyPressEvent(self, event) -> None:
+        if event.key() == Qt.Key.Key_Escape and self.message_bar.isVisible():
+            self.message_bar.dismiss()
+            return
+        super().keyPressEvent(event)
+
+    def closeEvent(self, event: QCloseEvent) -> None:
+        self.runner.cancel("analysis")
+        self.runner.cancel("flow")
+        self.runner.wait(30000)
+        super().closeEvent(event)
+
+
+def grab_when_ready(window: MainWindow, path: Path, done) -> None:
+    """Save a screenshot of ``window`` once the first analysis (or a load error) is shown, then call ``done(ok)``."""
+
+    def shoot(ok: bool) -> None:
+        QTimer.singleShot(80, lambda: (window.grab().save(str(path)), done(ok)))
+
+    window.sentence_page.views_updated.connect(lambda: shoot(True), Qt.ConnectionType.SingleShotConnection)
+    window.load_failed.connect(lambda _t: shoot(False), Qt.ConnectionType.SingleShotConnection)
