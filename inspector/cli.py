@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from inspector.errors import HeadcountError
+from inspector.explain_cli import register_explain
 from inspector.metrics import METRIC_NAMES
 
 EXIT_USER_ERROR = 2
@@ -113,6 +114,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     _register_analyze(sub)
     # Each further command lives in its own module and registers itself here (one line each).
+    register_explain(sub)
     return parser
 
 
