@@ -84,6 +84,25 @@ def misrouted_fallback(model_dir: Path) -> tuple[str, str]:
     return FALLBACK_SENTENCES[0]
 
 
+def explain_with_what_if(app, window, text: str, expected: str) -> None:
+    """Open the misfire on the Explain page, then compare it with a copy that lacks its most decisive word.
+
+    The decisive word is the one whose removal lowers the predicted label's
+    probability most (occlusion), so the what-if shows what that word did.
+    """
+    import numpy as np
+
+    page = window.explain_page
+    window.open_explanation(text, expected)
+    wait_until(app, lambda: page.state.ready and not window.is_busy())
+    ex = page.state.explanation
+    drop = int(np.argmax(ex.predicted.occlusion))
+    words = text.split() if len(text.split()) == len(ex.words) else ex.words  # keep the original casing
+    page.edited.setText(" ".join(w for i, w in enumerate(words) if i != drop))
+    page.run()
+    wait_until(app, lambda: page.state.comparison is not None and not window.is_busy())
+
+
 def dark_palette():
     from PySide6.QtGui import QColor, QPalette
 
@@ -164,6 +183,11 @@ def main() -> int:
     page.special_action.setChecked(False)
     page.source_box.setCurrentIndex(0)
     page.links_box.setCurrentIndex(0)
+    explain_with_what_if(app, window, text, expected)
+    window.grab().save(str(DOCS / "explain.png"))
+    print("wrote docs/explain.png")
+
+    window.show_page(page)
     app.setPalette(dark_palette())
     wait_until(app, lambda: not window.is_busy())
     window.grab().save(str(DOCS / "window_dark.png"))

@@ -180,12 +180,16 @@ class ExportController(QObject):
         except ValueError as exc:
             self.failed.emit(str(exc))
             return
+        self.ask_for(job, EXPORT_KINDS[kind], ["pdf"] if kind == "sheet" else ["png", "svg", "pdf"])
+
+    def ask_for(self, job: ExportJob, title: str, formats: list[str] | None = None) -> None:
+        """Open a save dialog for a prepared ``job`` (any page's), then export it in the background."""
+        formats = formats or ["png", "svg", "pdf"]
         folder = Path(str(self._settings.value("export/folder", str(Path.home()))))
-        formats = ["pdf"] if kind == "sheet" else ["png", "svg", "pdf"]
         filters = ";;".join(_FILTERS[f] for f in formats)
         path, chosen = QFileDialog.getSaveFileName(
             self._parent,
-            f"Export {EXPORT_KINDS[kind].lower()}",
+            f"Export {title.lower()}",
             str(folder / f"{job.default_stem}.{formats[0]}"),
             filters,
         )

@@ -29,11 +29,12 @@ from inspector.analysis import SentenceAnalysis, analyze_sentence
 from inspector.figures import CAUTION
 from inspector.loader import LoadedModel, load_checkpoint
 from inspector.metrics import METRIC_LABELS, METRIC_NAMES
+from ui.explain_page import ExplainPage
 from ui.export_actions import EXPORT_KINDS, ExportController
 from ui.panel import MessageBar
 from ui.sentence_page import SentencePageWidget
 from ui.state import SOURCES
-from ui.worker import JobRunner
+from ui.worker import MODEL_LOCK, JobRunner
 
 RECENT_KEY = "recent/models"
 RECENT_MAX = 8
@@ -52,6 +53,8 @@ SHORTCUTS_HELP = """<table cellspacing=4>
 <tr><td><b>Ctrl+Shift+W / H</b></td><td>Words instead of pieces / hide special tokens</td></tr>
 <tr><td><b>Ctrl+E</b></td><td>Export the view that has the keyboard focus</td></tr>
 <tr><td><b>Ctrl+Shift+E</b></td><td>Export the one-page figure sheet (PDF)</td></tr>
+<tr><td><b>Ctrl+Shift+X</b></td><td>Explain the sentence: what pushed it toward each label, and what-if edits</td></tr>
+<tr><td><b>Ctrl+Return</b></td><td>On the Explain page: explain again (and compare the edited copy)</td></tr>
 </table>"""
 
 
@@ -72,7 +75,8 @@ def analyse_interactively(lm: LoadedModel, text: str) -> SentenceAnalysis:
 
     if torch.get_num_threads() != INTERACTIVE_TORCH_THREADS:
         torch.set_num_threads(INTERACTIVE_TORCH_THREADS)
-    return analyze_sentence(lm, text)
+    with MODEL_LOCK:
+        return analyze_sentence(lm, text)
 
 
 class MainWindow(QMainWindow):
@@ -103,6 +107,8 @@ class MainWindow(QMainWindow):
         self.pages = QStackedWidget(self)
         self.nav.currentRowChanged.connect(self.pages.setCurrentIndex)
         self.add_page("Sentence", self.sentence_page)
+        self.explain_page = ExplainPage(self.runner, self.exporter, self, defaults=self._current_sentence)
+        self.add_page("Explain", self.explain_page)
 
         body = QHBoxLayout()
         body.setContentsMargins(0, 0, 0, 0)
@@ -133,6 +139,9 @@ class MainWindow(QMainWindow):
         page.bar.sentence_changed.connect(self.analyse)
         page.status.connect(lambda text: self.statusBar().showMessage(text, 6000))
         self.runner.busy_changed.connect(self._busy_changed)
+        self.model_loaded.connect(self._explain_model)
+        self.explain_page.status.connect(lambda text: self.statusBar().showMessage(text, 6000))
+        self.explain_page.error.connect(self.show_error)
         self.exporter.finished.connect(self._export_done)
         self.exporter.failed.connect(lambda text: self.show_error(f"Export failed: {text}"))
         self.resize(1360, 880)
@@ -188,6 +197,12 @@ class MainWindow(QMainWindow):
                 lambda _c=False, k=kind: self.exporter.ask(k),
                 tip=f"{EXPORT_KINDS[kind]} as PNG, SVG or PDF, with a CSV of its numbers",
             )
+        self._action(
+            export_menu,
+            "E&xplanation\u2026",
+            self.explain_page.export_current,
+            tip="The Explain page as PNG, SVG or PDF, with a CSV of every word's relevances",
+        )
         export_menu.addSeparator()
         self._action(
             export_menu,
@@ -221,6 +236,8 @@ class MainWindow(QMainWindow):
 
         go_menu = bar.addMenu("&Go")
         self._action(go_menu, "&Sentence entry", self.focus_entry, "Ctrl+L")
+        go_menu.addAction(page.explain_action)
+        page.explain_action.triggered.connect(self.explain_current_sentence)
         targets = [
             ("Head &mosaic", page.grid),
             ("&Close-up", page.closeup),
@@ -364,8 +381,29 @@ class MainWindow(QMainWindow):
         page.bar.entry.blockSignals(False)
         self.analyse(text)
 
+    def open_explanation(self, text: str, expected: str | None = None, edited: str = "") -> None:
+        """Show the Explain page and explain ``text`` for its prediction and ``expected`` (one click from a misfire)."""
+        self.explain_page.open(text, expected, edited)
+        self.show_page(self.explain_page)
+
+    def explain_current_sentence(self) -> None:
+        """Open the sentence page's sentence, with its expected label, on the Explain page."""
+        self.open_explanation(*self._current_sentence())
+
+    def _current_sentence(self) -> tuple[str, str | None]:
+        bar = self.sentence_page.bar
+        return bar.entry.text(), bar.expected_label()
+
+    def _explain_model(self, lm: LoadedModel) -> None:
+        self.explain_page.set_model(lm)
+        self.sentence_page.explain_action.setEnabled(not self.explain_page.problem)
+
     # -- export ------------------------------------------------------------------------------------
     def export_focused(self) -> None:
+        current = self.pages.currentWidget()
+        if current is not self.sentence_page and hasattr(current, "export_current"):
+            current.export_current()  # another page exports what it shows
+            return
         page = self.sentence_page
         kinds = {
             id(page.grid): "mosaic",
@@ -395,6 +433,8 @@ class MainWindow(QMainWindow):
             self.busy_label.setText("Computing flow\u2026")
         elif busy and channel == "export":
             self.busy_label.setText("Exporting\u2026")
+        elif busy and channel == "explain":
+            self.busy_label.setText("Explaining\u2026")
 
     # -- recent models -----------------------------------------------------------------------------
     def recent_models(self) -> list[str]:

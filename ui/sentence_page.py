@@ -77,6 +77,13 @@ class SentencePageWidget(QWidget):
             "Leave out [CLS]/[SEP]-style tokens; rows are renormalised (Ctrl+Shift+H)"
         )
         self.special_action.toggled.connect(lambda on: self.set_option("hide_special", on))
+        self.explain_action = QAction("E&xplain this sentence\u2026", self)
+        self.explain_action.setShortcut(QKeySequence("Ctrl+Shift+X"))
+        self.explain_action.setIconText("Explain\u2026")
+        self.explain_action.setToolTip("What pushed this sentence toward each label? (Ctrl+Shift+X)")
+        explain_button = QToolButton(self.bar)
+        explain_button.setDefaultAction(self.explain_action)
+        self.bar.layout().addWidget(explain_button, 1, 3, Qt.AlignmentFlag.AlignRight)
 
         self.mosaic_panel = self._mosaic_panel()
         self.closeup_panel = self._closeup_panel()

@@ -10,11 +10,17 @@ a view never shows the answer to an old request.
 
 from __future__ import annotations
 
+import threading
 from collections.abc import Callable
 
 from PySide6.QtCore import QObject, QRunnable, QThreadPool, Signal
 
 from inspector.errors import HeadcountError
+
+MODEL_LOCK = threading.RLock()
+"""Held by every job while it runs the open model. Capture hooks sit on the shared torch
+modules, so two channels running the same model at once (a keystroke's analysis and an
+explanation) would record each other's forward passes."""
 
 
 class _Relay(QObject):
