@@ -48,8 +48,13 @@ def bench_model(path, repeats: int = 40) -> dict[str, float]:
 
 def main() -> None:
     torch.set_num_threads(2)
-    models = {"sample model": SAMPLE_MODEL if sample_model_available() else None, "all-MiniLM-L6-v2": minilm_dir()}
-    print(f"{'model':<18} {'tokens':>6} {'bare ms':>8} {'capture ms':>10} {'ratio':>6} {'+metrics ms':>11} {'ratio':>6}")
+    models = {
+        "sample model": SAMPLE_MODEL if sample_model_available() else None,
+        "all-MiniLM-L6-v2": minilm_dir(),
+    }
+    print(
+        f"{'model':<18} {'tokens':>6} {'bare ms':>8} {'capture ms':>10} {'ratio':>6} {'+metrics ms':>11} {'ratio':>6}"
+    )
     for name, path in models.items():
         if path is None:
             print(f"{name:<18} (not available)")

@@ -13,6 +13,7 @@ from pathlib import Path
 
 import numpy as np
 
+from inspector.corpus_cli import register as register_corpus
 from inspector.errors import HeadcountError
 from inspector.explain_cli import register_explain
 from inspector.metrics import METRIC_NAMES
@@ -115,6 +116,7 @@ def build_parser() -> argparse.ArgumentParser:
     _register_analyze(sub)
     # Each further command lives in its own module and registers itself here (one line each).
     register_explain(sub)
+    register_corpus(sub)
     return parser
 
 

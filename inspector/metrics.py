@@ -1,4 +1,4 @@
-"""Per-head attention metrics, pure numpy.
+"""Per-head attention metrics over numpy arrays or torch tensors.
 
 Every function takes attention weights shaped ``(..., n, n)`` (query rows, key
 columns; leading axes are usually layers and heads, optionally a batch) and an
@@ -6,11 +6,18 @@ optional boolean ``mask`` shaped ``(..., n)`` or ``(n,)`` marking real tokens.
 Padding never counts: masked keys are dropped from each row (rows are *not*
 renormalised, since the model already gave padding zero weight) and masked
 queries are left out of every average. Results have the leading shape ``(...)``.
+
+Each formula is written once. Given numpy arrays the functions return numpy
+arrays; given a torch tensor they run in torch on the tensor's dtype and device
+(the corpus scan uses this on whole padded batches ``[batch, layers, heads, n, n]``
+with masks shaped ``[batch, 1, 1, n]``), so nothing is copied to numpy per batch.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from types import ModuleType
+from typing import Any
 
 import numpy as np
 
@@ -38,21 +45,83 @@ METRIC_LABELS: dict[str, str] = {
 }
 
 
-def _masks(attention: np.ndarray, mask: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
-    """Return (query_mask (..., n), key_mask (..., 1, n)) as float arrays."""
+def _is_torch(x: object) -> bool:
+    return type(x).__module__.startswith("torch")
+
+
+def _xp(attention: Any) -> ModuleType:
+    """The array namespace of ``attention``: numpy, or torch for tensors (imported lazily)."""
+    if _is_torch(attention):
+        import torch
+
+        return torch
+    return np
+
+
+def _as_float(xp: ModuleType, x: Any, like: Any) -> Any:
+    """``x`` as an array of ``like``'s float dtype (and device, for torch)."""
+    if xp is np:
+        return np.asarray(x, dtype=like.dtype)
+    return xp.as_tensor(x, dtype=like.dtype, device=like.device)
+
+
+def _masks(attention: Any, mask: Any | None) -> tuple[Any, Any]:
+    """Return (query_mask (..., n), key_mask (..., 1, n)) as float arrays.
+
+    The masks keep the mask's own leading shape (which must broadcast against the
+    attention's) instead of being expanded, so a mask shaped (batch, 1, 1, n)
+    costs nothing per layer and head.
+    """
+    xp = _xp(attention)
     n = attention.shape[-1]
-    if mask is None:
-        m = np.ones(n, dtype=attention.dtype)
-    else:
-        m = np.asarray(mask, dtype=attention.dtype)
-    m = np.broadcast_to(m, attention.shape[:-1])
+    m = _as_float(xp, np.ones(n) if mask is None else mask, attention)
+    if m.ndim > attention.ndim - 1 or m.shape[-1] != n:
+        raise ValueError(
+            f"mask of shape {tuple(m.shape)} does not fit attention of shape {tuple(attention.shape)}"
+        )
     return m, m[..., None, :]
 
 
-def _mean_over_queries(per_query: np.ndarray, qmask: np.ndarray) -> np.ndarray:
-    total = (per_query * qmask).sum(-1)
-    count = qmask.sum(-1)
-    return np.divide(total, count, out=np.zeros_like(total), where=count > 0)
+def _safe_divide(xp: ModuleType, num: Any, den: Any) -> Any:
+    """``num / den`` where ``den > 0``, else 0."""
+    ok = den > 0
+    return xp.where(ok, num / xp.where(ok, den, 1), 0)
+
+
+def _mean_over_queries(per_query: Any, qmask: Any) -> Any:
+    # With no real query the total is 0 too, so dividing by max(count, 1) gives the 0 we want.
+    return (per_query * qmask).sum(-1) / qmask.sum(-1).clip(min=1.0)
+
+
+def shannon_entropy(p: np.ndarray) -> np.ndarray:
+    """Shannon entropy of distributions along the last axis, in nats.
+
+    Parameters
+    ----------
+    p : ndarray or torch tensor of shape (..., n)
+        Non-negative weights (each row summing to 1 for a true entropy).
+
+    Returns
+    -------
+    array of shape (...)
+        ``H(p) = -sum_j p_j ln p_j`` with ``0 ln 0 = 0``.
+
+    References
+    ----------
+    Shannon (1948), "A Mathematical Theory of Communication".
+    """
+    xp = _xp(p)
+    if xp is np:
+        return -(p * np.log(np.where(p > 0, p, 1))).sum(-1)
+    # Same value: 0 ln(tiny) = 0. Clamping (to the smallest *normal* number: denormals
+    # make log slow) is several times faster than torch.special.entr on CPU, and the
+    # in-place steps avoid two large allocations per call.
+    plogp = p.clamp_min(xp.finfo(p.dtype).tiny)
+    if p.requires_grad:
+        plogp = plogp.log() * p
+    else:
+        plogp.log_().mul_(p)
+    return -plogp.sum(-1)
 
 
 def row_entropy(attention: np.ndarray, mask: np.ndarray | None = None) -> np.ndarray:
@@ -75,9 +144,7 @@ def row_entropy(attention: np.ndarray, mask: np.ndarray | None = None) -> np.nda
     Clark et al. (2019), "What Does BERT Look At?".
     """
     _, kmask = _masks(attention, mask)
-    a = attention * kmask
-    logs = np.log(a, out=np.zeros_like(a), where=a > 0)
-    return -(a * logs).sum(-1)
+    return shannon_entropy(attention * kmask)
 
 
 def head_entropy(
@@ -102,13 +169,20 @@ def head_entropy(
     ----------
     Clark et al. (2019), "What Does BERT Look At? An Analysis of BERT's Attention".
     """
+    return _entropy_over_queries(attention, row_entropy(attention, mask), mask, normalize=normalize)
+
+
+def _entropy_over_queries(attention: Any, ent: Any, mask: Any | None, *, normalize: bool) -> Any:
+    """Average row entropies ``ent`` (..., n) over real queries, optionally divided by ln m."""
     qmask, kmask = _masks(attention, mask)
-    ent = row_entropy(attention, mask)
-    if normalize:
-        m = kmask.sum(-1)
-        log_m = np.log(np.maximum(m, 1.0))
-        ent = np.divide(ent, log_m, out=np.zeros_like(ent), where=log_m > 0)
-    return _mean_over_queries(ent, qmask)
+    return _mean_over_queries(_per_log_keys(ent, kmask) if normalize else ent, qmask)
+
+
+def _per_log_keys(ent: Any, kmask: Any) -> Any:
+    """Row entropies divided by ``ln m`` (m = number of real keys); 0 where m <= 1."""
+    xp = _xp(ent)
+    log_m = xp.log(kmask.sum(-1).clip(min=1.0))
+    return _safe_divide(xp, ent, log_m)
 
 
 def mean_distance(attention: np.ndarray, mask: np.ndarray | None = None) -> np.ndarray:
@@ -130,11 +204,15 @@ def mean_distance(attention: np.ndarray, mask: np.ndarray | None = None) -> np.n
     distance (there in pixels; here in token positions, per head).
     """
     qmask, kmask = _masks(attention, mask)
+    return _mean_over_queries(_distance_rows(attention, kmask), qmask)
+
+
+def _distance_rows(attention: Any, kmask: Any) -> Any:
+    """Per query: ``sum_j a_ij |i - j|`` over real keys."""
     n = attention.shape[-1]
-    pos = np.arange(n, dtype=attention.dtype)
-    dist = np.abs(pos[:, None] - pos[None, :])
-    per_query = (attention * kmask * dist).sum(-1)
-    return _mean_over_queries(per_query, qmask)
+    pos = _as_float(_xp(attention), np.arange(n), attention)
+    dist = abs(pos[:, None] - pos[None, :])
+    return (attention * (dist * kmask)).sum(-1)  # dist * kmask is small: (mask dims..., n, n)
 
 
 def share_on(attention: np.ndarray, keys: np.ndarray, mask: np.ndarray | None = None) -> np.ndarray:
@@ -157,9 +235,13 @@ def share_on(attention: np.ndarray, keys: np.ndarray, mask: np.ndarray | None = 
     Clark et al. (2019), section 3 (attention to [CLS], [SEP] and punctuation).
     """
     qmask, kmask = _masks(attention, mask)
-    sel = np.broadcast_to(np.asarray(keys, dtype=attention.dtype), attention.shape[:-1])[..., None, :]
-    per_query = (attention * kmask * sel).sum(-1)
-    return _mean_over_queries(per_query, qmask)
+    return _mean_over_queries(_share_rows(attention, kmask, keys), qmask)
+
+
+def _share_rows(attention: Any, kmask: Any, keys: Any) -> Any:
+    """Per query: ``sum_{j in keys} a_ij`` over real keys."""
+    weights = kmask * _as_float(_xp(attention), keys, attention)[..., None, :]  # small: (mask dims..., 1, n)
+    return (attention * weights).sum(-1)
 
 
 def offset_share(attention: np.ndarray, offset: int, mask: np.ndarray | None = None) -> np.ndarray:
@@ -183,13 +265,18 @@ def offset_share(attention: np.ndarray, offset: int, mask: np.ndarray | None = N
     Clark et al. (2019), section 3.1 (heads attending to the previous/next token).
     """
     qmask, _ = _masks(attention, mask)
-    diag = np.diagonal(attention, offset=offset, axis1=-2, axis2=-1)
+    return _mean_over_queries(*_offset_rows(attention, qmask, offset))
+
+
+def _offset_rows(attention: Any, qmask: Any, offset: int) -> tuple[Any, Any]:
+    """(weights ``a_{i, i+offset}``, mask of the queries i whose neighbour i+offset is real)."""
+    diag = _xp(attention).diagonal(attention, offset, -2, -1)
     n = attention.shape[-1]
     if offset >= 0:
         q = qmask[..., : n - offset] * qmask[..., offset:]
     else:
         q = qmask[..., -offset:] * qmask[..., : n + offset]
-    return _mean_over_queries(diag, q)
+    return diag, q
 
 
 def confidence(attention: np.ndarray, mask: np.ndarray | None = None) -> np.ndarray:
@@ -211,7 +298,12 @@ def confidence(attention: np.ndarray, mask: np.ndarray | None = None) -> np.ndar
     Do the Heavy Lifting, the Rest Can Be Pruned", head confidence.
     """
     qmask, kmask = _masks(attention, mask)
-    return _mean_over_queries((attention * kmask).max(-1), qmask)
+    return _confidence_of(attention * kmask, qmask)
+
+
+def _confidence_of(masked: Any, qmask: Any) -> Any:
+    """Mean over real queries of the row maxima of key-masked attention."""
+    return _mean_over_queries(_xp(masked).amax(masked, -1), qmask)
 
 
 @dataclass
@@ -236,26 +328,85 @@ class HeadMetrics:
         return {name: getattr(self, name) for name in METRIC_NAMES}
 
 
+_LINEAR = ("distance", "special_share", "self_share", "prev_share", "next_share")
+"""The metrics that are weighted sums of attention weights (see :func:`_pair_weights`)."""
+
+
+def _pair_weights(a: Any, qmask: Any, kmask: Any, special: Any) -> tuple[Any, Any]:
+    """Weights ``W[..., i, j, c]`` and divisors ``N[..., c]`` with ``metric_c = sum_ij a_ij W_ijc / N_c``.
+
+    Each linear metric is a mean over its queries of ``sum_j a_ij w_ij``, i.e.
+    ``sum_ij a_ij (q_i w_ij) / sum_i q_i``: distance (``w = |i - j| k_j``), special
+    share (``w = s_j k_j``), self / previous / next share (``w = 1`` on the
+    diagonal / first sub- / first super-diagonal, counting the queries whose
+    neighbour is real, as :func:`offset_share`).
+    """
+    xp = _xp(a)
+    n = a.shape[-1]
+    pos = _as_float(xp, np.arange(n), a)
+    q_i = qmask[..., :, None]
+    qk = q_i * kmask  # (mask dims..., n, n): real query, real key
+    columns = [
+        qk * abs(pos[:, None] - pos[None, :]),
+        qk * _as_float(xp, special, a)[..., None, :],
+        q_i * (pos[:, None] == pos[None, :]),
+        qk * (pos[:, None] - 1 == pos[None, :]),
+        qk * (pos[:, None] + 1 == pos[None, :]),
+    ]
+    weights = xp.stack(xp.broadcast_arrays(*columns) if xp is np else xp.broadcast_tensors(*columns), -1)
+    queries = qmask.sum(-1)
+    adjacent = (qmask[..., 1:] * qmask[..., :-1]).sum(-1)
+    divisors = xp.stack([queries, queries, queries, adjacent, adjacent], -1).clip(min=1.0)
+    return weights, divisors
+
+
 def head_metrics(attention: np.ndarray, special: np.ndarray, mask: np.ndarray | None = None) -> HeadMetrics:
     """Compute every per-head metric at once.
 
     Parameters
     ----------
-    attention : ndarray of shape (..., n, n)
-        Typically (layers, heads, n, n) for one sentence.
-    special : bool ndarray of shape (..., n) or (n,)
+    attention : ndarray or torch tensor of shape (..., n, n)
+        Typically (layers, heads, n, n) for one sentence, or a padded batch
+        (batch, layers, heads, n, n). Numpy input is computed in float64; a
+        torch tensor keeps its own dtype and the fields are torch tensors.
+    special : bool array of shape (..., n) or (n,)
         True for special tokens ([CLS], [SEP], <s> ...).
-    mask : ndarray of shape (..., n) or (n,), optional
+    mask : array of shape (..., n) or (n,), optional
         True for real (non-padding) tokens.
+
+    Returns
+    -------
+    HeadMetrics
+        The values of :func:`head_entropy` (plain and normalised),
+        :func:`mean_distance`, :func:`share_on` (special tokens),
+        :func:`offset_share` (0, -1, +1) and :func:`confidence`.
+
+    Notes
+    -----
+    The five linear metrics are evaluated together as weighted sums over (query,
+    key) pairs, ``sum_ij a_ij W_ijc / N_c`` (one contraction instead of five
+    passes over the attention; equal to the per-metric functions up to
+    rounding); entropy and confidence share one key-masked copy.
     """
-    a = np.asarray(attention, dtype=np.float64)
+    a = attention if _is_torch(attention) else np.asarray(attention, dtype=np.float64)
+    xp = _xp(a)
+    qmask, kmask = _masks(a, mask)
+    masked = a * kmask  # shared by entropy and confidence
+    ent = shannon_entropy(masked)
+    per_query = xp.stack([ent, _per_log_keys(ent, kmask), xp.amax(masked, -1)])
+    entropy, normalized, conf = _mean_over_queries(per_query, qmask)
+    weights, divisors = _pair_weights(a, qmask, kmask, special)
+    linear = xp.einsum("...ij,...ijc->...c", a, weights) / divisors
+    distance, special_share, self_share, prev_share, next_share = (
+        linear[..., c] for c in range(len(_LINEAR))
+    )
     return HeadMetrics(
-        entropy=head_entropy(a, mask),
-        entropy_normalized=head_entropy(a, mask, normalize=True),
-        distance=mean_distance(a, mask),
-        special_share=share_on(a, special, mask),
-        self_share=offset_share(a, 0, mask),
-        prev_share=offset_share(a, -1, mask),
-        next_share=offset_share(a, 1, mask),
-        confidence=confidence(a, mask),
+        entropy=entropy,
+        entropy_normalized=normalized,
+        distance=distance,
+        special_share=special_share,
+        self_share=self_share,
+        prev_share=prev_share,
+        next_share=next_share,
+        confidence=conf,
     )

@@ -43,7 +43,9 @@ def test_analyze_bare_encoder_and_npz(minilm_dir, tmp_path, capsys):
     from inspector.loader import load_checkpoint
 
     out = tmp_path / "att.npz"
-    doc = _run_json(capsys, "analyze", str(minilm_dir), "--text", TEXT, "--json", "--save-attention", str(out))
+    doc = _run_json(
+        capsys, "analyze", str(minilm_dir), "--text", TEXT, "--json", "--save-attention", str(out)
+    )
     assert doc["prediction"] is None
     saved = np.load(out)["attention"]
     n = len(doc["tokens"])
