@@ -103,6 +103,24 @@ def explain_with_what_if(app, window, text: str, expected: str) -> None:
     wait_until(app, lambda: page.state.comparison is not None and not window.is_busy())
 
 
+def corpus_run(app, window) -> None:
+    """Run the Corpus page on the bundled evaluation set and shoot both of its tabs."""
+    from inspector.paths import SAMPLE_EVAL
+
+    page = window.corpus_page
+    window.show_page(page)
+    page.path_edit.setText(str(SAMPLE_EVAL))
+    page.every.setValue(2)  # a measured point every two heads keeps the screenshot run short
+    page.run()
+    wait_until(app, lambda: page.report is not None and not window.is_busy(), timeout=600.0)
+    window.grab().save(str(DOCS / "corpus.png"))
+    page.tabs.setCurrentIndex(1)
+    wait_until(app, lambda: not window.is_busy())
+    window.grab().save(str(DOCS / "corpus_heads.png"))
+    page.tabs.setCurrentIndex(0)
+    print("wrote docs/corpus.png, docs/corpus_heads.png")
+
+
 def dark_palette():
     from PySide6.QtGui import QColor, QPalette
 
@@ -186,6 +204,7 @@ def main() -> int:
     explain_with_what_if(app, window, text, expected)
     window.grab().save(str(DOCS / "explain.png"))
     print("wrote docs/explain.png")
+    corpus_run(app, window)
 
     window.show_page(page)
     app.setPalette(dark_palette())

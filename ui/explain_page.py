@@ -48,7 +48,7 @@ from ui.explain_state import (
 )
 from ui.export_actions import ExportController, ExportJob, _slug
 from ui.legend import ColourKey
-from ui.panel import column
+from ui.panel import buddy_label, column
 from ui.sentence_bar import NO_EXPECTATION
 from ui.signed import SignKey
 from ui.worker import MODEL_LOCK, JobRunner
@@ -182,9 +182,7 @@ class ExplainPage(QWidget):
         grid.setVerticalSpacing(4)
 
         def buddy(text: str, widget: QWidget) -> QLabel:
-            label = QLabel(text, box)
-            label.setBuddy(widget)
-            return label
+            return buddy_label(text, widget, box)
 
         grid.addWidget(buddy("&Sentence:", self.entry), 0, 0)
         grid.addWidget(self.entry, 0, 1, 1, 2)

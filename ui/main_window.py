@@ -29,6 +29,7 @@ from inspector.analysis import SentenceAnalysis, analyze_sentence
 from inspector.figures import CAUTION
 from inspector.loader import LoadedModel, load_checkpoint
 from inspector.metrics import METRIC_LABELS, METRIC_NAMES
+from ui.corpus_page import CorpusPage
 from ui.explain_page import ExplainPage
 from ui.export_actions import EXPORT_KINDS, ExportController
 from ui.panel import MessageBar
@@ -55,6 +56,8 @@ SHORTCUTS_HELP = """<table cellspacing=4>
 <tr><td><b>Ctrl+Shift+E</b></td><td>Export the one-page figure sheet (PDF)</td></tr>
 <tr><td><b>Ctrl+Shift+X</b></td><td>Explain the sentence: what pushed it toward each label, and what-if edits</td></tr>
 <tr><td><b>Ctrl+Return</b></td><td>On the Explain page: explain again (and compare the edited copy)</td></tr>
+<tr><td><b>Ctrl+Shift+K</b></td><td>Corpus page: a whole evaluation set (Enter on a misfire: sentence view; Ctrl+Enter: explain)</td></tr>
+<tr><td><b>Ctrl+Shift+R</b></td><td>On the Corpus page: export the report folder</td></tr>
 </table>"""
 
 
@@ -109,6 +112,8 @@ class MainWindow(QMainWindow):
         self.add_page("Sentence", self.sentence_page)
         self.explain_page = ExplainPage(self.runner, self.exporter, self, defaults=self._current_sentence)
         self.add_page("Explain", self.explain_page)
+        self.corpus_page = CorpusPage(self.runner, self.settings, self)
+        self.add_page("Corpus", self.corpus_page)
 
         body = QHBoxLayout()
         body.setContentsMargins(0, 0, 0, 0)
@@ -143,6 +148,7 @@ class MainWindow(QMainWindow):
         self.explain_page.status.connect(lambda text: self.statusBar().showMessage(text, 6000))
         self.explain_page.error.connect(self.show_error)
         self.exporter.finished.connect(self._export_done)
+        self._connect_corpus()
         self.exporter.failed.connect(lambda text: self.show_error(f"Export failed: {text}"))
         self.resize(1360, 880)
 
@@ -246,6 +252,13 @@ class MainWindow(QMainWindow):
         ]
         for i, (text, widget) in enumerate(targets):
             self._action(go_menu, text, lambda _c=False, w=widget: self._focus(w), f"Ctrl+{i + 1}")
+        self._action(
+            go_menu,
+            "Cor&pus page",
+            lambda: self.show_page(self.corpus_page),
+            "Ctrl+Shift+K",
+            "A whole evaluation set: accuracy, misfires, heads and pruning",
+        )
         go_menu.addSeparator()
         moves = [
             ("Layer &up", "Alt+Up", -1, 0),
@@ -261,6 +274,14 @@ class MainWindow(QMainWindow):
         help_menu = bar.addMenu("&Help")
         self._action(help_menu, "&Keyboard shortcuts", self.show_shortcuts, "F1")
         self._action(help_menu, "What &attention can and cannot tell", self.show_caution)
+
+    def _connect_corpus(self) -> None:
+        page = self.corpus_page
+        page.open_sentence.connect(self.open_sentence)
+        page.explain.connect(self.open_explanation)
+        page.status.connect(lambda text: self.statusBar().showMessage(text, 8000))
+        page.error.connect(self.show_error)
+        self.model_loaded.connect(page.set_model)
 
     def _focus(self, widget: QWidget) -> None:
         self.show_page(self.sentence_page)
@@ -435,6 +456,8 @@ class MainWindow(QMainWindow):
             self.busy_label.setText("Exporting\u2026")
         elif busy and channel == "explain":
             self.busy_label.setText("Explaining\u2026")
+        elif busy and channel == "corpus":
+            self.busy_label.setText("Analysing the corpus\u2026")
 
     # -- recent models -----------------------------------------------------------------------------
     def recent_models(self) -> list[str]:
@@ -497,6 +520,7 @@ class MainWindow(QMainWindow):
     def closeEvent(self, event: QCloseEvent) -> None:
         self.runner.cancel("analysis")
         self.runner.cancel("flow")
+        self.corpus_page.stop()
         self.runner.wait(30000)
         super().closeEvent(event)
 

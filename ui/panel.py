@@ -111,3 +111,10 @@ class MessageBar(QFrame):
     def dismiss(self) -> None:
         self.hide()
         self.closed.emit()
+
+
+def buddy_label(text: str, widget: QWidget, parent: QWidget) -> QLabel:
+    """A label whose ``&`` accelerator moves the keyboard focus to ``widget``."""
+    label = QLabel(text, parent)
+    label.setBuddy(widget)
+    return label

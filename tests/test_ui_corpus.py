@@ -1,0 +1,265 @@
+"""The Corpus page, offscreen: a run, its numbers, Cancel, misfires one click away, bad rows, export.
+
+The numbers the page shows are compared with the transformers library's own
+predictions on the same checkpoint scored by scikit-learn, and with
+``inspector.corpus.run_corpus`` (which tests/test_corpus_*.py check against
+scikit-learn, SciPy and closed forms).
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+pytest.importorskip("pytestqt")
+
+import torch  # noqa: E402
+from PySide6.QtCore import QSettings, Qt  # noqa: E402
+from sklearn.metrics import accuracy_score, confusion_matrix, f1_score, precision_recall_fscore_support  # noqa: E402
+
+from inspector.corpus import run_corpus  # noqa: E402
+from inspector.corpus_export import FIGURES, HEADS, PRUNE_MASK, PRUNING, SIMILAR_PAIRS, SUMMARY  # noqa: E402
+from inspector.dataset import read_labelled  # noqa: E402
+from inspector.loader import LoadedModel, load_checkpoint  # noqa: E402
+from tests.corpus_models import INTENTS, UTTERANCES, save_tiny_classifier, write_csv  # noqa: E402
+from ui.worker import MODEL_LOCK  # noqa: E402
+
+WAIT_MS = 60_000
+
+
+@pytest.fixture(scope="module")
+def classifier(tmp_path_factory) -> tuple[Path, LoadedModel]:
+    """The suite's seeded random 2-layer x 4-head BERT classifier with three ferry intents."""
+    folder = save_tiny_classifier(tmp_path_factory.mktemp("tiny_corpus_ui"))
+    return folder, load_checkpoint(folder)
+
+
+@pytest.fixture
+def data_file(tmp_path) -> Path:
+    """The invented ferry utterances with non-default field names (utterance, intent)."""
+    return write_csv(tmp_path / "ferry.csv", UTTERANCES, header=("utterance", "intent"))
+
+
+@pytest.fixture
+def window(qtbot, tmp_path, classifier):
+    from ui.main_window import MainWindow
+
+    win = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(win)
+    win.show()
+    win.open_model(classifier[0])
+    qtbot.waitUntil(lambda: win.lm is not None and win.corpus_page.lm is win.lm, timeout=WAIT_MS)
+    qtbot.waitUntil(lambda: not win.is_busy(), timeout=WAIT_MS)
+    yield win
+    win.corpus_page.stop()
+    win.runner.wait(30_000)
+
+
+def start(window, path: Path, text_field: str = "utterance", label_field: str = "intent") -> None:
+    page = window.corpus_page
+    window.show_page(page)
+    page.path_edit.setText(str(path))
+    page.text_field.setText(text_field)
+    page.label_field.setText(label_field)
+    page.run()
+
+
+def run_and_wait(qtbot, window, path: Path, **fields) -> str:
+    with qtbot.waitSignal(window.corpus_page.finished, timeout=WAIT_MS) as blocker:
+        start(window, path, **fields)
+    return blocker.args[0]
+
+
+def transformers_predictions(lm: LoadedModel, texts: list[str]) -> np.ndarray:
+    enc = lm.tokenizer(texts, padding=True, truncation=True, return_tensors="pt")
+    with torch.inference_mode():
+        return lm.model(**enc).logits.argmax(-1).numpy()
+
+
+def test_run_fills_the_page_with_the_core_and_sklearn_numbers(qtbot, window, classifier, data_file):
+    """Accuracy, macro-F1, per-intent table, confusion cells, misfires and head views equal the references.
+
+    Reference: scikit-learn's accuracy_score, f1_score(average='macro'), precision_recall_fscore_support and
+    confusion_matrix on the transformers library's own predictions; run_corpus for importance and pruning.
+    """
+    _, lm = classifier
+    assert run_and_wait(qtbot, window, data_file) == "done"
+    page = window.corpus_page
+    report = page.report
+    assert report is not None
+    y_true = np.array([INTENTS.index(label) for _, label in UTTERANCES])
+    y_pred = transformers_predictions(lm, [text for text, _ in UTTERANCES])
+    labels = list(range(len(INTENTS)))
+
+    assert report.evaluation.accuracy == pytest.approx(accuracy_score(y_true, y_pred))
+    assert report.evaluation.macro_f1 == pytest.approx(f1_score(y_true, y_pred, average="macro"))
+    summary = page.summary.text()
+    assert f"{100 * accuracy_score(y_true, y_pred):.1f}%" in summary
+    assert f"{f1_score(y_true, y_pred, average='macro'):.3f}" in summary
+
+    p, r, f, s = precision_recall_fscore_support(y_true, y_pred, labels=labels, zero_division=0)
+    assert page.intents.rowCount() == len(INTENTS)
+    for i, name in enumerate(INTENTS):
+        cells = [page.intents.item(i, c).text() for c in range(5)]
+        assert cells == [name, f"{p[i]:.3f}", f"{r[i]:.3f}", f"{f[i]:.3f}", str(s[i])]
+
+    cm = confusion_matrix(y_true, y_pred, labels=labels)
+    assert page.confusion.row_names == list(INTENTS)
+    assert [[int(t or 0) for t in row] for row in page.confusion.texts] == cm.tolist()
+    np.testing.assert_allclose(page.confusion.values, cm / cm.sum(1, keepdims=True))
+    hover = page.confusion.hover_text((0, 1))
+    assert f"{cm[0, 1]} utterance(s)" in hover and INTENTS[0] in hover and INTENTS[1] in hover
+
+    wrong = int((y_true != y_pred).sum())
+    assert wrong > 0, "the random classifier should misroute some utterances"
+    assert page.misfires.rowCount() == wrong
+    confidences = [float(page.misfires.item(i, 4).text()) for i in range(wrong)]
+    assert confidences == sorted(confidences, reverse=True)
+    for i in range(wrong):
+        text = page.misfires.item(i, 1).text()
+        k = [t for t, _ in UTTERANCES].index(text)
+        assert page.misfires.item(i, 2).text() == UTTERANCES[k][1]
+        assert page.misfires.item(i, 3).text() == INTENTS[y_pred[k]]
+        assert int(page.misfires.item(i, 0).text()) == k + 2  # CSV line: header is line 1
+
+    data = read_labelled(data_file, text_field="utterance", label_field="intent", known_labels=lm.labels)
+    core = run_corpus(lm, data, page.request().settings)
+    np.testing.assert_allclose(page.importance_map.values, core.importance.normalized, rtol=1e-4, atol=1e-6)
+    np.testing.assert_allclose(page.similarity.values, core.redundancy.similarity, atol=1e-5)
+    shown = {c.order_name: c.accuracy for c in page.plot.result.curves}
+    assert shown == {c.order_name: c.accuracy for c in core.pruning.curves}
+    assert report.pruning.removed == core.pruning.removed
+    assert "re-validated" in page.caution.text() and "without retraining" in page.caution.text()
+    assert page.progress.value() == page.progress.maximum()
+
+
+def test_cancel_stops_the_run_keeps_the_previous_results_and_a_later_run_works(qtbot, window, data_file):
+    """Cancel stops the run before its next batch: nothing new is shown, the window keeps working.
+
+    Reference: run_corpus raises CorpusCancelled when should_stop() is True before a batch (common practice, no
+    source); the job is held on MODEL_LOCK until Cancel was pressed, so the stop is deterministic.
+    """
+    page = window.corpus_page
+    assert run_and_wait(qtbot, window, data_file) == "done"
+    previous = page.report
+    with qtbot.waitSignal(page.finished, timeout=WAIT_MS) as blocker:
+        with MODEL_LOCK:  # the job waits here until Cancel has been pressed
+            start(window, data_file)
+            assert page.is_running() and page.cancel_button.isEnabled()
+            assert not page.run_button.isEnabled()
+            qtbot.mouseClick(page.cancel_button, Qt.MouseButton.LeftButton)
+    assert blocker.args[0] == "cancelled"
+    assert page.report is previous
+    assert "Cancelled" in page.phase_label.text()
+    qtbot.waitUntil(lambda: not page.is_running(), timeout=WAIT_MS)
+    assert page.run_button.isEnabled() and not page.cancel_button.isEnabled()
+    # the window is still usable: the sentence page analyses, and a new run completes
+    window.analyse("when is the last sailing back")
+    qtbot.waitUntil(
+        lambda: (
+            window.sentence_page.state.ready
+            and window.sentence_page.state.analysis.text == "when is the last sailing back"
+        ),
+        timeout=WAIT_MS,
+    )
+    assert run_and_wait(qtbot, window, data_file) == "done"
+    assert page.report is not previous
+
+
+def test_a_click_on_a_misfire_opens_it_in_the_sentence_page_and_explain_on_the_explain_page(
+    qtbot, window, data_file
+):
+    """One click on a misfire row shows it in the sentence view with its expected label; its Explain button
+    opens the Explain page with the same text and expected label.
+
+    Reference: the misfire list of the report (text and expected label come from the data file).
+    """
+    page = window.corpus_page
+    assert run_and_wait(qtbot, window, data_file) == "done"
+    misfires = page.report.evaluation.misfires
+    row = len(misfires) - 1
+    page.misfires.scrollToItem(page.misfires.item(row, 1))
+    rect = page.misfires.visualItemRect(page.misfires.item(row, 1))
+    qtbot.mouseClick(page.misfires.viewport(), Qt.MouseButton.LeftButton, pos=rect.center())
+    assert window.pages.currentWidget() is window.sentence_page
+    bar = window.sentence_page.bar
+    assert bar.entry.text() == misfires[row].text
+    assert bar.expected_label() == misfires[row].expected
+    qtbot.waitUntil(
+        lambda: (
+            window.sentence_page.state.ready
+            and window.sentence_page.state.analysis.text == misfires[row].text
+        ),
+        timeout=WAIT_MS,
+    )
+
+    window.show_page(page)
+    button = page.misfires.cellWidget(0, 5)
+    qtbot.mouseClick(button, Qt.MouseButton.LeftButton)
+    assert window.pages.currentWidget() is window.explain_page
+    assert window.explain_page.entry.text() == misfires[0].text
+    assert window.explain_page.expected_label() == misfires[0].expected
+    qtbot.waitUntil(lambda: window.explain_page.state.ready, timeout=WAIT_MS)
+
+    window.show_page(page)
+    page.misfires.setFocus()
+    page.misfires.setCurrentCell(0, 1)
+    qtbot.keyClick(page.misfires, Qt.Key.Key_Return)
+    assert window.pages.currentWidget() is window.sentence_page
+    assert window.sentence_page.bar.entry.text() == misfires[0].text
+    qtbot.waitUntil(lambda: not window.is_busy(), timeout=WAIT_MS)
+
+
+def test_bad_rows_are_reported_by_line_and_fail_policy_stops(qtbot, window, tmp_path):
+    """Skipped rows are listed with their line numbers and reasons, unknown labels with their counts;
+    the 'fail' policy stops with a message naming the lines.
+
+    Reference: CSV line numbering as a spreadsheet shows it (header = line 1), RFC 4180 layout.
+    """
+    rows = list(UTTERANCES[:6]) + [("", "timetable"), ("lost my ticket", "lost_property"), ("hello", "")]
+    path = write_csv(tmp_path / "bad.csv", rows)
+    page = window.corpus_page
+    assert run_and_wait(qtbot, window, path, text_field="text", label_field="label") == "done"
+    note = page.data_note.text()
+    assert "6 utterances used" in note and "3 bad row(s)" in note
+    assert "line 8: missing text" in note
+    assert (
+        "line 9: unknown label &#x27;lost_property&#x27;" in note
+        or "line 9: unknown label 'lost_property'" in note
+    )
+    assert "line 10: missing label" in note
+    assert "lost_property" in note and "(1 rows)" in note
+    assert page.report.evaluation.total == 6
+
+    previous = page.report
+    page.bad_rows_box.setCurrentIndex(page.bad_rows_box.findData("fail"))
+    assert run_and_wait(qtbot, window, path, text_field="text", label_field="label") == "failed"
+    message = window.message_bar.text()
+    assert "3 bad row(s)" in message and "line 8" in message and "line 9" in message
+    assert page.report is previous
+
+
+def test_export_writes_the_report_folder_and_the_prune_mask(qtbot, window, data_file, tmp_path):
+    """The export writes the CLI's files; Save prune mask writes the chosen heads as JSON.
+
+    Reference: the file list of inspector.corpus_export (the `headcount corpus --out` folder).
+    """
+    page = window.corpus_page
+    assert run_and_wait(qtbot, window, data_file) == "done"
+    out = tmp_path / "report"
+    page.export_report(out)
+    qtbot.waitUntil(lambda: not window.runner.is_busy("export"), timeout=WAIT_MS)
+    for name in (SUMMARY, HEADS, SIMILAR_PAIRS, PRUNING, PRUNE_MASK):
+        assert (out / name).is_file(), name
+    for stem in FIGURES.values():
+        assert (out / f"{stem}.png").is_file() and (out / f"{stem}.svg").is_file()
+    summary = json.loads((out / SUMMARY).read_text())
+    assert summary["accuracy"] == pytest.approx(page.report.evaluation.accuracy)
+    mask_path = page.save_mask(tmp_path / "mask.json")
+    mask = json.loads(mask_path.read_text())
+    assert mask == page.report.pruning.mask == json.loads((out / PRUNE_MASK).read_text())
+    assert sum(len(v) for v in mask.values()) == len(page.report.pruning.removed)
+    assert not list(tmp_path.glob("*.tmp*"))
