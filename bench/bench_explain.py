@@ -23,11 +23,11 @@ from pathlib import Path
 
 import torch
 
-from bench.common import median_seconds, minilm_dir
+from bench.common import median_seconds
 from inspector.capture import encode
 from inspector.explain import explain_sentence
 from inspector.loader import load_checkpoint
-from inspector.paths import SAMPLE_MODEL, sample_model_available
+from inspector.paths import SAMPLE_MODEL, minilm_dir, sample_model_available
 
 SENTENCES = [
     ("I need to cancel my crossing to Gullholm tomorrow", "change_booking"),

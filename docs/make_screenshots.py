@@ -150,13 +150,13 @@ def dark_palette():
 def main() -> int:
     from PySide6.QtCore import QSettings
 
-    from inspector.paths import SAMPLE_MODEL
+    from inspector.paths import SAMPLE_MODEL, sample_model_available
     from ui.app import application
     from ui.main_window import MainWindow
 
     app = application()
     tmp = tempfile.TemporaryDirectory()
-    if (SAMPLE_MODEL / "config.json").is_file():
+    if sample_model_available():
         model = SAMPLE_MODEL
         text, expected = misrouted_sentence(model)
     else:

