@@ -30,7 +30,6 @@ from PySide6.QtWidgets import (
     QComboBox,
     QDoubleSpinBox,
     QFileDialog,
-    QGridLayout,
     QHBoxLayout,
     QHeaderView,
     QLabel,
@@ -66,7 +65,7 @@ from ui.corpus_state import (
 )
 from ui.legend import ColourKey
 from ui.matrix_map import MatrixMap
-from ui.panel import Panel, buddy_label, column
+from ui.panel import Panel, buddy_label, column, control_grid
 from ui.pruning_plot import PruningPlot
 from ui.worker import MODEL_LOCK, JobRunner
 
@@ -230,10 +229,7 @@ class CorpusPage(QWidget):
         )
         self.export_button.clicked.connect(self.export_current)
 
-        grid = QGridLayout(box)
-        grid.setContentsMargins(8, 4, 8, 2)
-        grid.setHorizontalSpacing(8)
-        grid.setVerticalSpacing(4)
+        grid = control_grid(box)
 
         def buddy(text: str, widget: QWidget) -> QLabel:
             return buddy_label(text, widget, box)

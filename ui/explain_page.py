@@ -20,7 +20,6 @@ from PySide6.QtGui import QKeySequence, QShortcut
 from PySide6.QtWidgets import (
     QButtonGroup,
     QComboBox,
-    QGridLayout,
     QHBoxLayout,
     QLabel,
     QLineEdit,
@@ -48,7 +47,7 @@ from ui.explain_state import (
 )
 from ui.export_actions import ExportController, ExportJob, _slug
 from ui.legend import ColourKey
-from ui.panel import buddy_label, column
+from ui.panel import buddy_label, column, control_grid
 from ui.sentence_bar import NO_EXPECTATION
 from ui.signed import SignKey
 from ui.worker import MODEL_LOCK, JobRunner
@@ -176,10 +175,7 @@ class ExplainPage(QWidget):
         self.steps_box.setAccessibleName("Integrated Gradients steps")
         self.steps_box.editingFinished.connect(self._steps_changed)
 
-        grid = QGridLayout(box)
-        grid.setContentsMargins(8, 4, 8, 2)
-        grid.setHorizontalSpacing(8)
-        grid.setVerticalSpacing(4)
+        grid = control_grid(box)
 
         def buddy(text: str, widget: QWidget) -> QLabel:
             return buddy_label(text, widget, box)

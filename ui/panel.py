@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from PySide6.QtCore import QEvent, Qt, Signal
 from PySide6.QtGui import QFont, QPalette
-from PySide6.QtWidgets import QFrame, QHBoxLayout, QLabel, QToolButton, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QFrame, QGridLayout, QHBoxLayout, QLabel, QToolButton, QVBoxLayout, QWidget
 
 from ui.colormap import accent, dim_text
 
@@ -118,3 +118,12 @@ def buddy_label(text: str, widget: QWidget, parent: QWidget) -> QLabel:
     label = QLabel(text, parent)
     label.setBuddy(widget)
     return label
+
+
+def control_grid(box: QWidget) -> QGridLayout:
+    """The compact grid that holds a page's row of controls."""
+    grid = QGridLayout(box)
+    grid.setContentsMargins(8, 4, 8, 2)
+    grid.setHorizontalSpacing(8)
+    grid.setVerticalSpacing(4)
+    return grid
