@@ -73,14 +73,21 @@ class SentenceAnalysis:
         return rollout.attention_rollout(self.attention)
 
     @cached_property
+    def value_gram(self) -> np.ndarray:
+        """Inner products of the heads' transformed values [layers, n, heads, heads]."""
+        return norms.value_gram(self.values, self.out_weight)
+
+    @cached_property
     def value_weighted(self) -> np.ndarray:
         """Per-head value-weighted attention [layers, heads, n, n] (Kobayashi et al. 2020)."""
-        return norms.value_weighted_attention(self.attention, self.values, self.out_weight)
+        return norms.value_weighted_attention(
+            self.attention, self.values, self.out_weight, gram=self.value_gram
+        )
 
     @cached_property
     def layer_value_weighted(self) -> np.ndarray:
         """Layer-level value-weighted attention [layers, n, n] (Kobayashi et al. 2020)."""
-        return norms.layer_value_weighted(self.attention, self.values, self.out_weight)
+        return norms.layer_value_weighted(self.attention, self.values, self.out_weight, gram=self.value_gram)
 
     def flow(self, *, queries: list[int] | None = None) -> np.ndarray:
         """Attention flow [n, n]; raises ValueError for inputs too long to solve quickly."""

@@ -30,7 +30,33 @@ def transformed_values(values: np.ndarray, out_weight: np.ndarray) -> np.ndarray
     return np.einsum("lnhd,lohd->lhno", values, w, optimize=True)
 
 
-def value_weighted_attention(attention: np.ndarray, values: np.ndarray, out_weight: np.ndarray) -> np.ndarray:
+def value_gram(values: np.ndarray, out_weight: np.ndarray) -> np.ndarray:
+    """Inner products between the heads' transformed value vectors of each token.
+
+    Parameters
+    ----------
+    values : ndarray of shape (layers, n, heads, d)
+    out_weight : ndarray of shape (layers, hidden, heads*d)
+
+    Returns
+    -------
+    ndarray of shape (layers, n, heads, heads), in the inputs' float dtype
+        ``G[l, j, h, g] = <f_h(x_j), f_g(x_j)>``; its diagonal holds ``||f_h(x_j)||^2``.
+        Both value-weighted measures below follow from it without forming the
+        (layers, n, n, hidden) array of mixed vectors.
+
+    References
+    ----------
+    Kobayashi et al. (2020), "Attention is Not Only a Weight: Analyzing
+    Transformers with Vector Norms", eq. (5) for f_h.
+    """
+    f = transformed_values(values, out_weight).transpose(0, 2, 1, 3)  # (layers, n, heads, hidden)
+    return f @ f.swapaxes(-1, -2)
+
+
+def value_weighted_attention(
+    attention: np.ndarray, values: np.ndarray, out_weight: np.ndarray, *, gram: np.ndarray | None = None
+) -> np.ndarray:
     """Per-head value-weighted attention ``||a_ij f_h(x_j)||``.
 
     Parameters
@@ -38,6 +64,8 @@ def value_weighted_attention(attention: np.ndarray, values: np.ndarray, out_weig
     attention : ndarray of shape (layers, heads, n, n)
     values : ndarray of shape (layers, n, heads, d)
     out_weight : ndarray of shape (layers, hidden, heads*d)
+    gram : ndarray of shape (layers, n, heads, heads), optional
+        :func:`value_gram` of ``values`` and ``out_weight``, if already computed.
 
     Returns
     -------
@@ -49,12 +77,14 @@ def value_weighted_attention(attention: np.ndarray, values: np.ndarray, out_weig
     Kobayashi et al. (2020), "Attention is Not Only a Weight: Analyzing
     Transformers with Vector Norms", sec. 3.
     """
-    f = transformed_values(values, out_weight)
-    norms = np.linalg.norm(f, axis=-1)
-    return attention * norms[:, :, None, :]
+    g = value_gram(values, out_weight) if gram is None else gram
+    norms = np.sqrt(np.diagonal(g, axis1=-2, axis2=-1))  # (layers, n, heads)
+    return attention * norms.transpose(0, 2, 1)[:, :, None, :]
 
 
-def layer_value_weighted(attention: np.ndarray, values: np.ndarray, out_weight: np.ndarray) -> np.ndarray:
+def layer_value_weighted(
+    attention: np.ndarray, values: np.ndarray, out_weight: np.ndarray, *, gram: np.ndarray | None = None
+) -> np.ndarray:
     """Layer-level value-weighted attention ``||sum_h a_ij^h f_h(x_j)||``.
 
     Parameters
@@ -62,18 +92,22 @@ def layer_value_weighted(attention: np.ndarray, values: np.ndarray, out_weight: 
     attention : ndarray of shape (layers, heads, n, n)
     values : ndarray of shape (layers, n, heads, d)
     out_weight : ndarray of shape (layers, hidden, heads*d)
+    gram : ndarray of shape (layers, n, heads, heads), optional
+        :func:`value_gram` of ``values`` and ``out_weight``, if already computed.
 
     Returns
     -------
     ndarray of shape (layers, n, n)
+        ``sqrt(sum_{h,g} a_ij^h a_ij^g G[j, h, g])``, the same number as the norm
+        of the mixed vector, computed from the heads' Gram matrix.
 
     References
     ----------
     Kobayashi et al. (2020), eq. (6), the multi-head norm ``||sum_h a f_h||``.
     """
-    f = transformed_values(values, out_weight)
-    mixed = np.einsum("lhij,lhjo->lijo", attention, f, optimize=True)
-    return np.linalg.norm(mixed, axis=-1)
+    g = value_gram(values, out_weight) if gram is None else gram
+    squared = np.einsum("lhij,lgij,ljhg->lij", attention, attention, g, optimize=True)
+    return np.sqrt(np.clip(squared, 0.0, None))
 
 
 def attention_output(

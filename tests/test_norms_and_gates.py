@@ -8,7 +8,12 @@ import numpy as np
 import torch
 
 from inspector.capture import HeadGates, encode, run
-from inspector.norms import attention_output, layer_value_weighted, value_weighted_attention
+from inspector.norms import (
+    attention_output,
+    layer_value_weighted,
+    transformed_values,
+    value_weighted_attention,
+)
 
 TEXTS = ["Is the cafe open on the night boat?", "two adults and a van to Skerrin please"]
 
@@ -43,6 +48,20 @@ def test_value_weighted_norms_are_consistent(minilm):
     assert per_head.shape == att.shape and per_layer.shape == (6, att.shape[-1], att.shape[-1])
     assert np.all(per_layer <= per_head.sum(1) + 1e-9)
     assert np.all(per_head[att == 0] == 0)
+
+
+def test_value_weighted_equals_norms_of_the_vectors(minilm):
+    """Reference: Kobayashi et al. 2020, sec. 3 and eq. (6), evaluated literally on all-MiniLM-L6-v2: build
+    a_ij f_h(x_j) and sum_h a_ij f_h(x_j) as vectors and take numpy's 2-norm; the Gram-matrix route must agree."""
+    cap = run(minilm, TEXTS[:1], values=True)
+    att = cap.sentence(0).astype(np.float64)
+    values = cap.values[0].astype(np.float64)
+    weight = cap.out_weight.astype(np.float64)
+    f = transformed_values(values, weight)  # (layers, heads, n, hidden)
+    per_head = np.linalg.norm(att[..., None] * f[:, :, None, :, :], axis=-1)
+    per_layer = np.linalg.norm(np.einsum("lhij,lhjo->lijo", att, f), axis=-1)
+    np.testing.assert_allclose(value_weighted_attention(att, values, weight), per_head, rtol=1e-9, atol=1e-12)
+    np.testing.assert_allclose(layer_value_weighted(att, values, weight), per_layer, rtol=1e-7, atol=1e-9)
 
 
 def _hidden(lm, batch, gates=None) -> torch.Tensor:
