@@ -79,7 +79,11 @@ def analyse_interactively(lm: LoadedModel, text: str) -> SentenceAnalysis:
     if torch.get_num_threads() != INTERACTIVE_TORCH_THREADS:
         torch.set_num_threads(INTERACTIVE_TORCH_THREADS)
     with MODEL_LOCK:
-        return analyze_sentence(lm, text)
+        result = analyze_sentence(lm, text)
+    # Fill the lazily computed views here, on the worker thread, not on first paint in the GUI thread.
+    result.rollout  # noqa: B018
+    result.value_gram  # noqa: B018
+    return result
 
 
 class MainWindow(QMainWindow):
