@@ -133,7 +133,6 @@ class AttentionRecorder:
         return hook
 
     def __enter__(self) -> AttentionRecorder:
-        reg = self._stack.enter_context
         handles = [self.lm.model.register_forward_pre_hook(self._clear)]
         for p, part in enumerate(self.lm.parts):
             target = part.attention if self.lm.family.weights_from == "output" else part.attention.dropout
@@ -144,7 +143,7 @@ class AttentionRecorder:
                 handles.append(part.query.register_forward_hook(self._keep(self.queries)))
                 handles.append(part.key.register_forward_hook(self._keep(self.keys)))
         for h in handles:
-            reg(_Removing(h))
+            self._stack.callback(h.remove)
         return self
 
     def __exit__(self, *exc: object) -> None:
@@ -159,19 +158,6 @@ class AttentionRecorder:
         w = self.weights
         batch = w[0].shape[0] if w[0].dim() == 4 else 1
         return torch.stack([x.reshape(batch, self.lm.num_heads, *x.shape[-2:]) for x in w], dim=1)
-
-
-class _Removing:
-    """Adapter so a hook handle can live in an ExitStack."""
-
-    def __init__(self, handle: torch.utils.hooks.RemovableHandle) -> None:
-        self.handle = handle
-
-    def __enter__(self) -> None:
-        return None
-
-    def __exit__(self, *exc: object) -> None:
-        self.handle.remove()
 
 
 class HeadGates:
@@ -207,9 +193,9 @@ class HeadGates:
         return (gated, *inp[1:])
 
     def __enter__(self) -> HeadGates:
-        self._stack.enter_context(_Removing(self.lm.model.register_forward_pre_hook(self.counter.reset)))
+        self._stack.callback(self.lm.model.register_forward_pre_hook(self.counter.reset).remove)
         for part in {id(p.out_proj): p for p in self.lm.parts}.values():
-            self._stack.enter_context(_Removing(part.out_proj.register_forward_pre_hook(self._hook)))
+            self._stack.callback(part.out_proj.register_forward_pre_hook(self._hook).remove)
         return self
 
     def __exit__(self, *exc: object) -> None:
