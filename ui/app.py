@@ -16,6 +16,7 @@ from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication
 
 from inspector.paths import default_model
+from ui.binding_check import binding_warning
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -66,6 +67,9 @@ def run_window(argv: Sequence[str]) -> int:
     """Entry point used by ``ui.launcher``: returns the process exit status."""
     args = build_parser().parse_args(list(argv))
     app = application()
+    warning = binding_warning()
+    if warning:
+        print(warning, file=sys.stderr)
     window = build_window(args)
     window.show()
     status = {"code": 0}
