@@ -28,7 +28,7 @@ start: setup
 	fi
 
 headless: setup
-	$(BIN)/python -m inspector.demo
+	$(BIN)/python -m inspector.cli.demo
 
 test: setup
 	$(BIN)/python -m pytest

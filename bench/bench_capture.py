@@ -11,9 +11,9 @@ from __future__ import annotations
 import torch
 
 from bench.common import interleaved_medians
-from inspector.capture import AttentionRecorder, encode
-from inspector.loader import load_checkpoint
-from inspector.metrics import head_metrics
+from inspector.checkpoint.capture import AttentionRecorder, encode
+from inspector.checkpoint.loader import load_checkpoint
+from inspector.measures.metrics import head_metrics
 from inspector.paths import SAMPLE_MODEL, minilm_dir, sample_model_available
 
 SENTENCE = "hi, I booked the 07:30 crossing from Port Averly but need to move it to Friday with my van"

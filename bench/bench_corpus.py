@@ -35,10 +35,10 @@ from pathlib import Path
 import torch
 
 from bench.common import interleaved_medians
-from inspector.batching import encode_set
-from inspector.corpus import CorpusSettings, importance_pass, label_indices, scan
-from inspector.dataset import read_labelled
-from inspector.loader import load_checkpoint
+from inspector.checkpoint.loader import load_checkpoint
+from inspector.corpus.batching import encode_set
+from inspector.corpus.dataset import read_labelled
+from inspector.corpus.run import CorpusSettings, importance_pass, label_indices, scan
 from inspector.paths import PROJECT_ROOT, SAMPLE_EVAL, SAMPLE_MODEL, sample_model_available
 
 BATCH = 32
@@ -100,10 +100,10 @@ def speed(model_dir: Path, data_path: Path, repeats: int, limit: int | None = No
 _MEMORY_CHILD = r"""
 import json, resource, sys, tracemalloc
 import torch
-from inspector.corpus import scan
-from inspector.batching import encode_set
-from inspector.dataset import read_labelled
-from inspector.loader import load_checkpoint
+from inspector.corpus.run import scan
+from inspector.corpus.batching import encode_set
+from inspector.corpus.dataset import read_labelled
+from inspector.checkpoint.loader import load_checkpoint
 model, path, times = sys.argv[1], sys.argv[2], int(sys.argv[3])
 lm = load_checkpoint(model)
 base = read_labelled(path, known_labels=lm.labels)

@@ -24,9 +24,9 @@ from pathlib import Path
 import torch
 
 from bench.common import median_seconds
-from inspector.capture import encode
-from inspector.explain import explain_sentence
-from inspector.loader import load_checkpoint
+from inspector.checkpoint.capture import encode
+from inspector.checkpoint.loader import load_checkpoint
+from inspector.explanation.explain import explain_sentence
 from inspector.paths import SAMPLE_MODEL, minilm_dir, sample_model_available
 
 SENTENCES = [

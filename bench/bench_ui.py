@@ -46,7 +46,7 @@ def median_ms(fn, repeats: int, warmup: int = 3) -> float:
 
 def sentence_with_tokens(lm, target: int, offset: int = 0) -> str:
     """A sentence that tokenises to exactly ``target`` tokens (specials included), if the words allow."""
-    from inspector.capture import encode
+    from inspector.checkpoint.capture import encode
 
     words: list[str] = []
     for w in WORDS[offset:] + WORDS[:offset]:
@@ -90,10 +90,10 @@ def build_base_sized(folder: Path) -> Path:
 
 
 def bench_grid(app) -> tuple[float, float, int]:
-    from inspector.analysis import analyze_sentence
-    from inspector.loader import load_checkpoint
-    from ui.head_grid import HeadGrid
-    from ui.state import SentencePage, metric_range
+    from inspector.checkpoint.loader import load_checkpoint
+    from inspector.measures.analysis import analyze_sentence
+    from ui.sentence.head_grid import HeadGrid
+    from ui.sentence.state import SentencePage, metric_range
 
     with tempfile.TemporaryDirectory() as tmp:
         lm = load_checkpoint(build_base_sized(Path(tmp) / "base_sized"))
@@ -122,11 +122,11 @@ def bench_grid(app) -> tuple[float, float, int]:
 
 
 def bench_keystroke(app) -> tuple[float, float, float, float, int, str]:
-    from inspector.loader import load_checkpoint
+    from inspector.checkpoint.loader import load_checkpoint
     from inspector.paths import SAMPLE_MODEL, sample_model_available
     from ui.main_window import MainWindow
     from ui.main_window import analyse_interactively as analyze
-    from ui.sentence_bar import DEBOUNCE_MS
+    from ui.sentence.bar import DEBOUNCE_MS
 
     tmp = tempfile.TemporaryDirectory()
     if sample_model_available():

@@ -56,8 +56,8 @@ def random_classifier(folder: Path) -> Path:
 
 def misrouted_sentence(model_dir: Path) -> tuple[str, str]:
     """The first evaluation sentence the model gets wrong (short enough for readable views)."""
-    from inspector.analysis import analyze_sentence
-    from inspector.loader import load_checkpoint
+    from inspector.checkpoint.loader import load_checkpoint
+    from inspector.measures.analysis import analyze_sentence
     from inspector.paths import SAMPLE_EVAL
 
     lm = load_checkpoint(model_dir)
@@ -74,8 +74,8 @@ def misrouted_sentence(model_dir: Path) -> tuple[str, str]:
 
 def misrouted_fallback(model_dir: Path) -> tuple[str, str]:
     """The first of the invented ferry sentences the (random) model misroutes."""
-    from inspector.analysis import analyze_sentence
-    from inspector.loader import load_checkpoint
+    from inspector.checkpoint.loader import load_checkpoint
+    from inspector.measures.analysis import analyze_sentence
 
     lm = load_checkpoint(model_dir)
     for text, label in FALLBACK_SENTENCES:

@@ -22,6 +22,6 @@ def minilm_dir() -> Path:
 
 @pytest.fixture(scope="session")
 def minilm(minilm_dir: Path):
-    from inspector.loader import load_checkpoint
+    from inspector.checkpoint.loader import load_checkpoint
 
     return load_checkpoint(minilm_dir)

@@ -88,8 +88,8 @@ def shared_minilm_classifier() -> Path:
 
 def load_with_set(model_dir: Path, folder: Path, rows: Sequence[tuple[str, str]] = UTTERANCES):
     """Load ``model_dir`` and read ``rows`` (written as ``folder/set.csv``) against its labels."""
-    from inspector.dataset import read_labelled
-    from inspector.loader import load_checkpoint
+    from inspector.checkpoint.loader import load_checkpoint
+    from inspector.corpus.dataset import read_labelled
 
     lm = load_checkpoint(model_dir)
     return lm, read_labelled(write_csv(folder / "set.csv", rows), known_labels=lm.labels)

@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 import torch
 
-from inspector.capture import AttentionRecorder, encode, run
-from inspector.loader import load_checkpoint
+from inspector.checkpoint.capture import AttentionRecorder, encode, run
+from inspector.checkpoint.loader import load_checkpoint
 from tests.families import CONFIGS, build_checkpoint
 
 SENTENCES = [

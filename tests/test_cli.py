@@ -7,8 +7,8 @@ import json
 import numpy as np
 import pytest
 
-from inspector.cli import main
-from inspector.metrics import METRIC_NAMES
+from inspector.cli.main import main
+from inspector.measures.metrics import METRIC_NAMES
 from tests.families import CONFIGS, LABELS, build_checkpoint
 
 TEXT = "can i change my booking to the 9:15 ferry"
@@ -39,8 +39,8 @@ def test_analyze_bare_encoder_and_npz(minilm_dir, tmp_path, capsys):
     """Reference: transformers' output_attentions on all-MiniLM-L6-v2 for the saved array."""
     import torch
 
-    from inspector.capture import encode
-    from inspector.loader import load_checkpoint
+    from inspector.checkpoint.capture import encode
+    from inspector.checkpoint.loader import load_checkpoint
 
     out = tmp_path / "att.npz"
     doc = _run_json(

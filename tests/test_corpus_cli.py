@@ -8,12 +8,12 @@ import json
 import numpy as np
 import pytest
 
-from inspector.cli import main
-from inspector.corpus import CorpusCancelled, CorpusSettings, run_corpus
-from inspector.corpus_export import HEADS_HEADER, PRUNING_HEADER, SIMILAR_PAIRS_HEADER
-from inspector.dataset import read_labelled
-from inspector.loader import load_checkpoint
-from inspector.metrics import METRIC_NAMES
+from inspector.checkpoint.loader import load_checkpoint
+from inspector.cli.main import main
+from inspector.corpus.dataset import read_labelled
+from inspector.corpus.report import HEADS_HEADER, PRUNING_HEADER, SIMILAR_PAIRS_HEADER
+from inspector.corpus.run import CorpusCancelled, CorpusSettings, run_corpus
+from inspector.measures.metrics import METRIC_NAMES
 from tests.corpus_models import UTTERANCES, save_tiny_classifier, write_csv, write_jsonl
 
 FIGURES = ("confusion_matrix", "head_importance", "head_similarity", "pruning_curve")

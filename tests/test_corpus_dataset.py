@@ -7,7 +7,7 @@ import json
 
 import pytest
 
-from inspector.dataset import read_labelled
+from inspector.corpus.dataset import read_labelled
 from inspector.errors import HeadcountError
 from tests.corpus_models import INTENTS, UTTERANCES, write_csv, write_jsonl
 

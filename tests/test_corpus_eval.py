@@ -7,7 +7,7 @@ import pytest
 import torch
 from sklearn.metrics import accuracy_score, confusion_matrix, f1_score, precision_recall_fscore_support
 
-from inspector.corpus import Evaluation, scan
+from inspector.corpus.run import Evaluation, scan
 from tests.corpus_models import INTENTS, load_with_set, shared_minilm_classifier
 
 

@@ -13,10 +13,10 @@ import numpy as np
 import pytest
 import torch
 
-from inspector.batching import encode_set
-from inspector.capture import HeadGates
-from inspector.corpus import importance_pass, label_indices, predict, scan, simulate_pruning
-from inspector.pruning import importance_order
+from inspector.checkpoint.capture import HeadGates
+from inspector.corpus.batching import encode_set
+from inspector.corpus.pruning import importance_order
+from inspector.corpus.run import importance_pass, label_indices, predict, scan, simulate_pruning
 from tests.corpus_models import load_with_set, shared_minilm_classifier
 
 COPY_LAYER, SOURCE, TARGET = 2, 3, 7

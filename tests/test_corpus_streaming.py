@@ -6,11 +6,11 @@ import numpy as np
 import pytest
 import torch
 
-from inspector import metrics
-from inspector.capture import run
-from inspector.corpus import scan
-from inspector.metrics import METRIC_NAMES, head_metrics
-from inspector.streaming import RunningMoments
+from inspector.checkpoint.capture import run
+from inspector.corpus.run import scan
+from inspector.corpus.streaming import RunningMoments
+from inspector.measures import metrics
+from inspector.measures.metrics import METRIC_NAMES, head_metrics
 from tests.corpus_models import load_with_set, shared_minilm_classifier
 
 
@@ -41,7 +41,7 @@ def test_running_moments_equal_numpy_mean_and_std():
 def test_head_metrics_equal_the_per_metric_functions(seed):
     """head_metrics (pair-weight contraction for the linear metrics) equals each metric's own function.
 
-    Reference: the single-metric functions of inspector.metrics (checked against closed
+    Reference: the single-metric functions of inspector.measures.metrics (checked against closed
     forms in test_metrics.py), on random masked attention with special tokens.
     """
     rng = np.random.default_rng(seed)
@@ -68,7 +68,7 @@ def test_head_metrics_equal_the_per_metric_functions(seed):
 
 
 def test_torch_metrics_on_padded_batch_equal_numpy_per_sentence(minilm_classifier):
-    """The torch path of inspector.metrics on a padded batch equals its numpy path per unpadded sentence.
+    """The torch path of inspector.measures.metrics on a padded batch equals its numpy path per unpadded sentence.
 
     Reference: the numpy implementation (tested against closed forms in test_metrics.py)
     applied to each sentence's attention without padding, as captured from transformers.

@@ -13,18 +13,18 @@ import torch
 import transformers
 from PIL import Image
 
-from inspector import capture
-from inspector.analysis import softmax
-from inspector.cli import main
+from inspector.checkpoint import capture
+from inspector.checkpoint.loader import load_checkpoint
+from inspector.checkpoint.tokens import make_view
+from inspector.cli.main import main
 from inspector.errors import HeadcountError
-from inspector.explain import explain_sentence
-from inspector.gradients import attention_gradients, grad_weighted_rollout, integrated_gradients
-from inspector.loader import load_checkpoint
-from inspector.metrics import head_metrics
-from inspector.occlusion import occlude_words
+from inspector.explanation.explain import explain_sentence
+from inspector.explanation.gradients import attention_gradients, grad_weighted_rollout, integrated_gradients
+from inspector.explanation.occlusion import occlude_words
+from inspector.explanation.whatif import compare_sentences
+from inspector.measures.analysis import softmax
+from inspector.measures.metrics import head_metrics
 from inspector.paths import SAMPLE_EVAL, SAMPLE_MODEL
-from inspector.tokens import make_view
-from inspector.whatif import compare_sentences
 from tests.families import CONFIGS, LABELS, build_checkpoint
 
 SENTENCES = [
@@ -305,7 +305,7 @@ def test_explain_refuses_what_it_cannot_explain(classifier, minilm):
 
 
 def test_what_if_comparison(classifier):
-    """Reference: inspector.metrics.head_metrics on capture.run's attention of each sentence (computed apart),
+    """Reference: inspector.measures.metrics.head_metrics on capture.run's attention of each sentence (computed apart),
     and difflib for the word alignment."""
     original, edited = "please cancel my crossing", "please change my crossing tomorrow"
     cmp = compare_sentences(classifier, original, edited, expected=LABELS[1], metric="special_share", top=4)

@@ -13,7 +13,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from inspector.errors import HeadcountError
-from inspector.faithfulness import (
+from inspector.explanation.faithfulness import (
     AGREEMENT_THRESHOLD,
     average_ranks,
     faithfulness,
@@ -21,9 +21,9 @@ from inspector.faithfulness import (
     merge_to_words,
     spearman,
 )
-from inspector.gradients import grad_weighted_rollout, integrate_path, quadrature
-from inspector.occlusion import occluded_rows
-from inspector.whatif import heads_that_changed, word_changes
+from inspector.explanation.gradients import grad_weighted_rollout, integrate_path, quadrature
+from inspector.explanation.occlusion import occluded_rows
+from inspector.explanation.whatif import heads_that_changed, word_changes
 
 
 def test_grad_weighted_rollout_hand_computed():

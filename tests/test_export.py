@@ -7,7 +7,7 @@ import stat
 
 import pytest
 
-from inspector.export import atomic_write, save_text
+from inspector.figures.files import atomic_write, save_text
 
 
 def test_failed_write_leaves_no_file(tmp_path):

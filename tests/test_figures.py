@@ -1,4 +1,4 @@
-"""inspector.figures without Qt: layout arrays, tables, captions and file formats."""
+"""inspector.figures.sentence without Qt: layout arrays, tables, captions and file formats."""
 
 from __future__ import annotations
 
@@ -9,8 +9,8 @@ import xml.etree.ElementTree as ET
 import numpy as np
 import pytest
 
-from inspector import figures
 from inspector.errors import HeadcountError
+from inspector.figures import sentence as figures
 
 
 def _attention(L: int, H: int, n: int, seed: int = 0) -> np.ndarray:
@@ -20,11 +20,11 @@ def _attention(L: int, H: int, n: int, seed: int = 0) -> np.ndarray:
 
 
 def test_figures_module_never_imports_qt():
-    """inspector.figures loads without any Qt module (the core stays Qt-free).
+    """inspector.figures.sentence loads without any Qt module (the core stays Qt-free).
 
     Reference: project rule "inspector/ never imports Qt" (common practice, no source).
     """
-    code = "import sys, inspector.figures; print(any(m.startswith(('PySide', 'PyQt', 'shiboken')) for m in sys.modules))"
+    code = "import sys, inspector.figures.sentence; print(any(m.startswith(('PySide', 'PyQt', 'shiboken')) for m in sys.modules))"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
 

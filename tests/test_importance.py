@@ -7,12 +7,12 @@ import pytest
 import torch
 import torch.nn.functional as F
 
-from inspector.batching import encode_set
-from inspector.capture import HeadGates
-from inspector.corpus import importance_pass, label_indices
-from inspector.dataset import read_labelled
-from inspector.importance import gate_gradients, normalize_per_layer
-from inspector.loader import load_checkpoint
+from inspector.checkpoint.capture import HeadGates
+from inspector.checkpoint.loader import load_checkpoint
+from inspector.corpus.batching import encode_set
+from inspector.corpus.dataset import read_labelled
+from inspector.corpus.importance import gate_gradients, normalize_per_layer
+from inspector.corpus.run import importance_pass, label_indices
 from tests.corpus_models import UTTERANCES, shared_minilm_classifier, write_csv
 
 EPS = 1e-4

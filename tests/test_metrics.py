@@ -10,7 +10,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
-from inspector import metrics
+from inspector.measures import metrics
 
 
 def _random_attention(rng: np.random.Generator, shape: tuple[int, ...]) -> np.ndarray:

@@ -7,8 +7,8 @@ import copy
 import numpy as np
 import torch
 
-from inspector.capture import HeadGates, encode, run
-from inspector.norms import (
+from inspector.checkpoint.capture import HeadGates, encode, run
+from inspector.measures.norms import (
     attention_output,
     layer_value_weighted,
     transformed_values,

@@ -8,11 +8,9 @@ import numpy as np
 import pytest
 import torch
 
-from inspector.batching import encode_set
-from inspector.capture import HeadGates
-from inspector.corpus import choose_mask, label_indices, predict, simulate_pruning
-from inspector.errors import HeadcountError
-from inspector.pruning import (
+from inspector.checkpoint.capture import HeadGates
+from inspector.corpus.batching import encode_set
+from inspector.corpus.pruning import (
     PruningCurve,
     duplicates_order,
     importance_order,
@@ -22,6 +20,8 @@ from inspector.pruning import (
     random_order,
     step_counts,
 )
+from inspector.corpus.run import choose_mask, label_indices, predict, simulate_pruning
+from inspector.errors import HeadcountError
 from tests.corpus_models import load_with_set, save_tiny_classifier
 
 

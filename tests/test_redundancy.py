@@ -10,7 +10,7 @@ import torch
 from scipy.cluster.hierarchy import fcluster, linkage
 from scipy.spatial.distance import jensenshannon, squareform
 
-from inspector.redundancy import (
+from inspector.corpus.redundancy import (
     DivergenceSums,
     Redundancy,
     js_divergence,

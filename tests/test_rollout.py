@@ -7,7 +7,7 @@ import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from inspector.rollout import attention_flow, attention_rollout, flow_graph
+from inspector.measures.rollout import attention_flow, attention_rollout, flow_graph
 
 
 def test_rollout_hand_worked_two_layers_three_tokens():

@@ -10,9 +10,9 @@ import socket
 import pytest
 import torch
 
-from inspector.analysis import analyze_sentence
+from inspector.checkpoint.loader import load_checkpoint
 from inspector.errors import HeadcountError
-from inspector.loader import load_checkpoint
+from inspector.measures.analysis import analyze_sentence
 from tests.families import build_checkpoint
 
 

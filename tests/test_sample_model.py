@@ -206,7 +206,7 @@ def test_no_eval_text_appears_in_train() -> None:
 
 def test_core_loader_agrees_with_transformers(eval_rows, hf_predictions, id2label) -> None:
     """Reference: transformers AutoModelForSequenceClassification predictions on the eval split."""
-    loader = pytest.importorskip("inspector.loader")
+    loader = pytest.importorskip("inspector.checkpoint.loader")
     lm = loader.load_checkpoint(CHECKPOINT)
     assert lm.task == "sequence-classification"
     assert isinstance(lm.model, torch.nn.Module)

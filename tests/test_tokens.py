@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from inspector.analysis import analyze_sentence
-from inspector.tokens import apply_view, make_view
+from inspector.checkpoint.tokens import apply_view, make_view
+from inspector.measures.analysis import analyze_sentence
 
 
 def test_word_view_rule_on_a_hand_example():

@@ -2,7 +2,7 @@
 
 The numbers the page shows are compared with the transformers library's own
 predictions on the same checkpoint scored by scikit-learn, and with
-``inspector.corpus.run_corpus`` (which tests/test_corpus_*.py check against
+``inspector.corpus.run.run_corpus`` (which tests/test_corpus_*.py check against
 scikit-learn, SciPy and closed forms).
 """
 
@@ -20,12 +20,12 @@ import torch  # noqa: E402
 from PySide6.QtCore import QSettings, Qt  # noqa: E402
 from sklearn.metrics import accuracy_score, confusion_matrix, f1_score, precision_recall_fscore_support  # noqa: E402
 
-from inspector.corpus import run_corpus  # noqa: E402
-from inspector.corpus_export import FIGURES, HEADS, PRUNE_MASK, PRUNING, SIMILAR_PAIRS, SUMMARY  # noqa: E402
-from inspector.dataset import read_labelled  # noqa: E402
-from inspector.loader import LoadedModel, load_checkpoint  # noqa: E402
+from inspector.checkpoint.loader import LoadedModel, load_checkpoint  # noqa: E402
+from inspector.corpus.dataset import read_labelled  # noqa: E402
+from inspector.corpus.report import FIGURES, HEADS, PRUNE_MASK, PRUNING, SIMILAR_PAIRS, SUMMARY  # noqa: E402
+from inspector.corpus.run import run_corpus  # noqa: E402
 from tests.corpus_models import INTENTS, UTTERANCES, save_tiny_classifier, write_csv  # noqa: E402
-from ui.worker import MODEL_LOCK  # noqa: E402
+from ui.widgets.worker import MODEL_LOCK  # noqa: E402
 
 WAIT_MS = 60_000
 
@@ -245,7 +245,7 @@ def test_bad_rows_are_reported_by_line_and_fail_policy_stops(qtbot, window, tmp_
 def test_export_writes_the_report_folder_and_the_prune_mask(qtbot, window, data_file, tmp_path):
     """The export writes the CLI's files; Save prune mask writes the chosen heads as JSON.
 
-    Reference: the file list of inspector.corpus_export (the `headcount corpus --out` folder).
+    Reference: the file list of inspector.corpus.report (the `headcount corpus --out` folder).
     """
     page = window.corpus_page
     assert run_and_wait(qtbot, window, data_file) == "done"

@@ -1,8 +1,8 @@
 """The Explain page, offscreen: one click from a sentence, the numbers it holds, the what-if, export, bare encoders.
 
 Every number the page paints is compared with the core's own computation on the
-same checkpoint and input (``inspector.explain.explain_sentence`` and
-``inspector.whatif.compare_sentences``), which tests/test_explain.py checks
+same checkpoint and input (``inspector.explanation.explain.explain_sentence`` and
+``inspector.explanation.whatif.compare_sentences``), which tests/test_explain.py checks
 against the transformers library, SciPy and closed forms; and with the
 ``headcount explain --json`` command line.
 """
@@ -24,12 +24,12 @@ from PIL import Image  # noqa: E402
 from PySide6.QtCore import QRectF, QSettings  # noqa: E402
 from PySide6.QtGui import QImage, QPainter, QPalette  # noqa: E402
 
-from inspector.analysis import analyze_sentence  # noqa: E402
-from inspector.cli import main as cli_main  # noqa: E402
-from inspector.explain import explain_sentence  # noqa: E402
-from inspector.loader import LoadedModel, load_checkpoint  # noqa: E402
+from inspector.checkpoint.loader import LoadedModel, load_checkpoint  # noqa: E402
+from inspector.cli.main import main as cli_main  # noqa: E402
+from inspector.explanation.explain import explain_sentence  # noqa: E402
+from inspector.explanation.whatif import compare_sentences  # noqa: E402
+from inspector.measures.analysis import analyze_sentence  # noqa: E402
 from inspector.paths import SAMPLE_EVAL, SAMPLE_MODEL  # noqa: E402
-from inspector.whatif import compare_sentences  # noqa: E402
 from tests.families import LABELS, build_checkpoint  # noqa: E402
 
 WAIT_MS = 60_000
@@ -117,7 +117,7 @@ def test_open_explanation_holds_the_core_numbers_and_the_cli_agrees(
 ):
     """open_explanation shows the Explain page; its lanes, captions and agreement table equal explain_sentence.
 
-    Reference: inspector.explain.explain_sentence on the same checkpoint and input (checked in
+    Reference: inspector.explanation.explain.explain_sentence on the same checkpoint and input (checked in
     tests/test_explain.py against transformers' logits, SciPy's Spearman rho and IG completeness),
     and the command line ``headcount explain --json`` (same defaults: 64 steps, pad baseline, remove).
     """
@@ -172,7 +172,7 @@ def test_open_explanation_holds_the_core_numbers_and_the_cli_agrees(
 def test_what_if_matches_compare_sentences(qtbot, window, tiny_dir, tiny, misfire):
     """The what-if shows both sentences' lanes and the per-head change of compare_sentences, for any metric.
 
-    Reference: inspector.whatif.compare_sentences on the same inputs (metrics from inspector.metrics,
+    Reference: inspector.explanation.whatif.compare_sentences on the same inputs (metrics from inspector.measures.metrics,
     checked against SciPy's entropy in tests/test_metrics.py); difflib's word alignment.
     """
     page = explain_and_wait(qtbot, window, TEXT, misfire, EDITED)
@@ -210,8 +210,8 @@ def test_export_writes_figure_and_csv_with_the_page_numbers(
     Reference: PNG/SVG/PDF signatures (PNG spec, W3C SVG, ISO 32000 header) parsed by Pillow and
     ElementTree; the CSV's numbers against compare_sentences on the same inputs.
     """
-    from ui import export_actions
-    from ui.explain_page import explanation_export
+    from ui.explain.page import explanation_export
+    from ui.widgets import export as export_actions
 
     page = explain_and_wait(qtbot, window, TEXT, misfire, EDITED)
     target = tmp_path / "explained.png"
@@ -245,7 +245,7 @@ def test_bare_encoder_gives_a_readable_message_and_the_page_stays_usable(
 ):
     """A bare encoder has no prediction: the page says so in words, and works again once a classifier reopens.
 
-    Reference: inspector.explain.require_classifier's message; explain_sentence for the classifier afterwards.
+    Reference: inspector.explanation.explain.require_classifier's message; explain_sentence for the classifier afterwards.
     """
     open_model(qtbot, window, encoder_dir)
     page = window.explain_page
@@ -281,7 +281,7 @@ def test_explain_action_opens_the_sentence_page_sentence(qtbot, window, tiny_dir
 def test_newest_request_wins(qtbot, window, tiny_dir, misfire):
     """Two quick requests: only the second one's answer is shown.
 
-    Reference: the latest-only channel rule of ui.worker.JobRunner (common practice, no source).
+    Reference: the latest-only channel rule of ui.widgets.worker.JobRunner (common practice, no source).
     """
     page = window.explain_page
     window.open_explanation(TEXT, misfire)
@@ -296,7 +296,7 @@ def test_signed_bars_put_the_sign_on_the_side(qtbot):
 
     Reference: the signed rendering documented in ui/signed.py (our design; geometry is common practice, no source).
     """
-    from ui.signed import draw_signed_bar
+    from ui.widgets.signed import draw_signed_bar
 
     image = QImage(200, 20, QImage.Format.Format_ARGB32)
     painter = QPainter(image)
@@ -311,7 +311,7 @@ def test_signed_bars_put_the_sign_on_the_side(qtbot):
 def test_sample_model_misfire(qtbot, window):
     """On the bundled sample model, a misrouted evaluation sentence explained in the window equals explain_sentence.
 
-    Reference: inspector.explain.explain_sentence on the same checkpoint and input.
+    Reference: inspector.explanation.explain.explain_sentence on the same checkpoint and input.
     """
     if not (SAMPLE_MODEL / "config.json").is_file():
         pytest.skip("the bundled sample model has not been trained yet")
@@ -341,7 +341,7 @@ def test_explaining_while_the_sentence_page_analyses(qtbot, window, tiny, misfir
     """An explanation and the sentence page's analysis requested together both finish with the core's numbers.
 
     Both channels run the same torch model; capture hooks sit on its modules, so the jobs must take turns
-    (ui.worker.MODEL_LOCK). Reference: analyze_sentence and explain_sentence on the same inputs.
+    (ui.widgets.worker.MODEL_LOCK). Reference: analyze_sentence and explain_sentence on the same inputs.
     """
     for text in (EDITED, TEXT) * 3:
         window.open_explanation(text, misfire)

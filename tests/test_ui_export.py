@@ -15,8 +15,8 @@ from matplotlib.figure import Figure  # noqa: E402
 from PIL import Image  # noqa: E402
 from PySide6.QtCore import QSettings  # noqa: E402
 
-from inspector.analysis import analyze_sentence  # noqa: E402
-from inspector.loader import load_checkpoint  # noqa: E402
+from inspector.checkpoint.loader import load_checkpoint  # noqa: E402
+from inspector.measures.analysis import analyze_sentence  # noqa: E402
 from tests.families import build_checkpoint  # noqa: E402
 
 TEXT = "do dogs travel free on the ferry"
@@ -35,7 +35,7 @@ def core(tiny):
 
 @pytest.fixture
 def page(core):
-    from ui.state import SentencePage
+    from ui.sentence.state import SentencePage
 
     state = SentencePage()
     state.set_analysis(core)
@@ -69,7 +69,8 @@ def test_each_view_exports_png_svg_pdf(page, tmp_path, kind):
 
     Reference: PNG/SVG/PDF file signatures (PNG spec, W3C SVG, ISO 32000 header); parsed by Pillow and ElementTree.
     """
-    from ui.export_actions import build_export, run_export
+    from ui.sentence.export import build_export
+    from ui.widgets.export import run_export
 
     job = build_export(page, kind)
     for suffix in (".png", ".svg", ".pdf"):
@@ -85,7 +86,8 @@ def test_csv_numbers_equal_the_core(page, core, tmp_path):
 
     Reference: analyze_sentence attention, head metrics and attention rollout (Abnar & Zuidema 2020) from the core.
     """
-    from ui.export_actions import build_export, run_export
+    from ui.sentence.export import build_export
+    from ui.widgets.export import run_export
 
     run_export(build_export(page, "closeup"), tmp_path / "c.png")
     rows = read_csv(tmp_path / "c.csv")
@@ -121,7 +123,8 @@ def test_figure_sheet_is_one_pdf_page(page, tmp_path):
 
     Reference: ISO 32000 page objects ("/Type /Page"), counted in the uncompressed object headers.
     """
-    from ui.export_actions import build_export, run_export
+    from ui.sentence.export import build_export
+    from ui.widgets.export import run_export
 
     target = tmp_path / "sheet.pdf"
     assert run_export(build_export(page, "sheet"), target) == [target]
@@ -135,7 +138,8 @@ def test_failed_export_leaves_no_partial_file(page, tmp_path, monkeypatch):
 
     Reference: write-to-temporary-then-rename (POSIX rename(2) atomicity); common practice, no source.
     """
-    from ui.export_actions import build_export, run_export
+    from ui.sentence.export import build_export
+    from ui.widgets.export import run_export
 
     def broken_savefig(self, fh, **kwargs):
         fh.write(b"%PDF-1.4 half a figure")

@@ -55,7 +55,7 @@ def test_colour_table_matches_matplotlib_cividis():
     Reference: matplotlib's 'cividis' colormap (Nunez, Anderton & Renslow 2018).
     """
     pytest.importorskip("PySide6")
-    from ui.colormap import LUT, to_rgba
+    from ui.widgets.colormap import LUT, to_rgba
 
     values = np.linspace(0.0, 1.0, 1001)
     expected = np.round(colormaps["cividis"](np.round(values * 255) / 255) * 255)

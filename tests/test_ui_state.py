@@ -5,9 +5,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from inspector.analysis import analyze_sentence
-from inspector.tokens import apply_view, make_view
-from ui.state import SentencePage, arc_links, classification_index, metric_range
+from inspector.checkpoint.tokens import apply_view, make_view
+from inspector.measures.analysis import analyze_sentence
+from ui.sentence.state import SentencePage, arc_links, classification_index, metric_range
 
 TEXT = "rebooking the kayak crossing"
 
@@ -44,7 +44,7 @@ def test_relevance_sums_pieces_and_renormalises_without_specials(analysis):
     """Word relevance is the sum of its pieces' rollout; hiding specials renormalises to 1.
 
     Reference: attention rollout (Abnar & Zuidema 2020) from the core; sum-over-pieces rule of
-    inspector.tokens (Clark et al. 2019).
+    inspector.checkpoint.tokens (Clark et al. 2019).
     """
     page = SentencePage()
     page.set_analysis(analysis)
@@ -63,7 +63,7 @@ def test_relevance_sums_pieces_and_renormalises_without_specials(analysis):
 def test_head_matrices_follow_the_token_view(analysis):
     """The mosaic's matrices equal apply_view of the core's attention for the chosen view.
 
-    Reference: inspector.tokens.apply_view (core), rows of attention sum to 1 (softmax).
+    Reference: inspector.checkpoint.tokens.apply_view (core), rows of attention sum to 1 (softmax).
     """
     page = SentencePage()
     page.set_analysis(analysis)

@@ -1,7 +1,7 @@
 """The desktop window, offscreen: opening models, typing, selection, views, errors.
 
 Every number a view paints is compared with the core's own computation on the
-same checkpoint (``inspector.analysis.analyze_sentence``), which the core's tests
+same checkpoint (``inspector.measures.analysis.analyze_sentence``), which the core's tests
 check against the transformers library's outputs.
 """
 
@@ -18,11 +18,11 @@ pytest.importorskip("pytestqt")
 from PySide6.QtCore import QMimeData, QPointF, QSettings, Qt, QUrl  # noqa: E402
 from PySide6.QtGui import QAction, QDropEvent  # noqa: E402
 
-from inspector.analysis import analyze_sentence  # noqa: E402
-from inspector.loader import load_checkpoint  # noqa: E402
+from inspector.checkpoint.loader import load_checkpoint  # noqa: E402
+from inspector.checkpoint.tokens import apply_view, make_view  # noqa: E402
+from inspector.measures.analysis import analyze_sentence  # noqa: E402
+from inspector.measures.rollout import attention_flow  # noqa: E402
 from inspector.paths import SAMPLE_MODEL  # noqa: E402
-from inspector.rollout import attention_flow  # noqa: E402
-from inspector.tokens import apply_view, make_view  # noqa: E402
 from tests.families import LABELS, build_checkpoint  # noqa: E402
 
 WAIT_MS = 60_000
@@ -142,9 +142,9 @@ def test_keyboard_and_click_move_selection_and_closeup_shows_that_head(qtbot, wi
 def test_word_view_hidden_specials_and_aggregates(qtbot, window, tiny_dir, tiny):
     """Word view, hidden specials, layer mean, rollout, value-weighted and flow views equal the core's arrays.
 
-    Reference: inspector.tokens.apply_view / make_view (Clark et al. 2019 word maps); attention rollout and
+    Reference: inspector.checkpoint.tokens.apply_view / make_view (Clark et al. 2019 word maps); attention rollout and
     attention flow (Abnar & Zuidema 2020) as computed by the core (flow solved with SciPy's maximum_flow);
-    value-weighted attention (Kobayashi et al. 2020) from inspector.norms.
+    value-weighted attention (Kobayashi et al. 2020) from inspector.measures.norms.
     """
     open_and_wait(qtbot, window, tiny_dir)
     page = window.sentence_page
@@ -177,7 +177,7 @@ def test_word_view_hidden_specials_and_aggregates(qtbot, window, tiny_dir, tiny)
 def test_bad_folder_shows_message_and_window_stays_usable(qtbot, window, tiny_dir, tmp_path):
     """A folder without a checkpoint gives a readable message; the open model keeps working.
 
-    Reference: inspector.loader refuses folders without config.json with a HeadcountError (common practice, no source).
+    Reference: inspector.checkpoint.loader refuses folders without config.json with a HeadcountError (common practice, no source).
     """
     open_and_wait(qtbot, window, tiny_dir)
     empty = tmp_path / "not_a_model"
@@ -243,7 +243,7 @@ def test_stale_results_are_dropped(qtbot):
 
     Reference: sequence-numbered requests, latest wins (common practice, no source).
     """
-    from ui.worker import JobRunner
+    from ui.widgets.worker import JobRunner
 
     runner = JobRunner()
     got: list[int] = []
@@ -258,7 +258,7 @@ def test_head_grid_layout_from_4x4_to_24x16(qtbot):
 
     Reference: block maximum checked against an explicit loop over blocks (closed form).
     """
-    from ui.head_grid import NUMBER_LANE, HeadGrid, resample_cells
+    from ui.sentence.head_grid import NUMBER_LANE, HeadGrid, resample_cells
 
     rng = np.random.default_rng(0)
     for L, H, n, size in [(4, 4, 16, (700, 600)), (24, 16, 128, (900, 700))]:

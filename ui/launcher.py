@@ -19,7 +19,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         from ui.app import run_window
 
         return run_window(args[1:] if args else [])
-    from inspector.cli import main as cli_main
+    from inspector.cli.main import main as cli_main
 
     return cli_main(args)
 

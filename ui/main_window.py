@@ -25,17 +25,18 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from inspector.analysis import SentenceAnalysis, analyze_sentence
-from inspector.figures import CAUTION
-from inspector.loader import LoadedModel, load_checkpoint
-from inspector.metrics import METRIC_LABELS, METRIC_NAMES
-from ui.corpus_page import CorpusPage
-from ui.explain_page import ExplainPage
-from ui.export_actions import EXPORT_KINDS, ExportController
-from ui.panel import MessageBar
-from ui.sentence_page import SentencePageWidget
-from ui.state import SOURCES
-from ui.worker import MODEL_LOCK, JobRunner
+from inspector.checkpoint.loader import LoadedModel, load_checkpoint
+from inspector.figures.sentence import CAUTION
+from inspector.measures.analysis import SentenceAnalysis, analyze_sentence
+from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
+from ui.corpus.page import CorpusPage
+from ui.explain.page import ExplainPage
+from ui.sentence.export import EXPORT_KINDS, build_export
+from ui.sentence.page import SentencePageWidget
+from ui.sentence.state import SOURCES
+from ui.widgets.export import ExportController
+from ui.widgets.panel import MessageBar
+from ui.widgets.worker import MODEL_LOCK, JobRunner
 
 RECENT_KEY = "recent/models"
 RECENT_MAX = 8
@@ -103,7 +104,13 @@ class MainWindow(QMainWindow):
 
         self.message_bar = MessageBar(self)
         self.sentence_page = SentencePageWidget(self.runner, self)
-        self.exporter = ExportController(self, self.sentence_page.state, self.runner, self.settings)
+        self.exporter = ExportController(
+            self,
+            self.runner,
+            self.settings,
+            lambda kind: build_export(self.sentence_page.state, kind),
+            EXPORT_KINDS,
+        )
 
         self.nav = QListWidget(self)
         self.nav.setAccessibleName("Pages")

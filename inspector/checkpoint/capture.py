@@ -1,0 +1,264 @@
+"""Forward hooks that record per-head attention, and per-head gates.
+
+The hooks only keep references to tensors the model computes anyway, so a
+captured forward pass returns exactly the logits of a plain one. Layer order is
+the order in which attention blocks are *called*, which also covers families
+that reuse one block for every layer (ALBERT).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from contextlib import ExitStack
+from dataclasses import dataclass
+
+import numpy as np
+import torch
+from torch import nn
+
+from inspector.checkpoint.loader import LoadedModel
+from inspector.errors import HeadcountError
+
+
+@dataclass
+class Batch:
+    """Tokenised sentences, padded to one length."""
+
+    input_ids: torch.Tensor
+    """[batch, tokens] token ids."""
+    attention_mask: torch.Tensor
+    """[batch, tokens] 1 for real tokens, 0 for padding."""
+    tokens: list[list[str]]
+    """Per sentence: the pieces of its real tokens, special tokens included."""
+    special: list[np.ndarray]
+    """Per sentence: bool [n_real] marking special tokens."""
+    word_ids: list[list[int | None]]
+    """Per sentence: the word index of each real token (None for special tokens)."""
+    real_index: list[np.ndarray]
+    """Per sentence: positions of the real tokens inside the padded row."""
+    extra: dict[str, torch.Tensor]
+    """Other model inputs the tokenizer produced (token_type_ids ...)."""
+
+    def model_inputs(self) -> dict[str, torch.Tensor]:
+        return {"input_ids": self.input_ids, "attention_mask": self.attention_mask, **self.extra}
+
+
+def encode(lm: LoadedModel, texts: Sequence[str], max_length: int | None = None) -> Batch:
+    """Tokenise ``texts`` into one padded batch, remembering pieces, specials and words."""
+    if isinstance(texts, str):
+        texts = [texts]
+    if not texts:
+        raise HeadcountError("no text to analyse")
+    tok = lm.tokenizer
+    limit = max_length or int(getattr(lm.model.config, "max_position_embeddings", 512))
+    limit = min(limit, 512)
+    enc = tok(list(texts), padding=True, truncation=True, max_length=limit, return_tensors="pt")
+    ids = enc["input_ids"]
+    mask = enc["attention_mask"]
+    special_ids = set(tok.all_special_ids)
+    tokens, special, word_ids, real_index = [], [], [], []
+    for b in range(ids.shape[0]):
+        idx = np.flatnonzero(mask[b].numpy())
+        row = ids[b, idx].tolist()
+        tokens.append(tok.convert_ids_to_tokens(row))
+        special.append(np.array([t in special_ids for t in row], dtype=bool))
+        try:
+            wid = enc.word_ids(b)
+            word_ids.append([wid[i] for i in idx])
+        except (ValueError, AttributeError):
+            word_ids.append([None if s else i for i, s in zip(range(len(row)), special[-1])])
+        real_index.append(idx)
+    extra = {k: v for k, v in enc.items() if k not in ("input_ids", "attention_mask")}
+    return Batch(ids, mask, tokens, special, word_ids, real_index, extra)
+
+
+class _CallCounter:
+    """Counts calls of hooked modules within one forward pass."""
+
+    def __init__(self) -> None:
+        self.n = 0
+
+    def reset(self, *_: object) -> None:
+        self.n = 0
+
+    def next(self) -> int:
+        i = self.n
+        self.n += 1
+        return i
+
+
+class AttentionRecorder:
+    """Context manager: record attention weights (and optionally Q, K, V) per layer.
+
+    Parameters
+    ----------
+    lm : LoadedModel
+    values : bool
+        Also keep each layer's value projection output [batch, tokens, heads*d].
+    queries_keys : bool
+        Also keep the query and key projection outputs.
+    """
+
+    def __init__(self, lm: LoadedModel, *, values: bool = False, queries_keys: bool = False) -> None:
+        self.lm = lm
+        self.want_values = values
+        self.want_qk = queries_keys
+        self.weights: list[torch.Tensor] = []
+        self.order: list[int] = []
+        self.values: list[torch.Tensor] = []
+        self.queries: list[torch.Tensor] = []
+        self.keys: list[torch.Tensor] = []
+        self._stack = ExitStack()
+
+    def _clear(self, *_: object) -> None:
+        for store in (self.weights, self.order, self.values, self.queries, self.keys):
+            store.clear()
+
+    def _keep(self, store: list[torch.Tensor]):
+        def hook(_m: nn.Module, _inp: object, out: torch.Tensor) -> None:
+            store.append(out)
+
+        return hook
+
+    def _weights_hook(self, part_index: int):
+        from_output = self.lm.family.weights_from == "output"
+
+        def hook(_m: nn.Module, inp: tuple, out: object) -> None:
+            tensor = out[1] if from_output else inp[0]
+            if tensor is None:
+                raise HeadcountError("the model did not return attention weights (eager attention needed)")
+            self.weights.append(tensor)
+            self.order.append(part_index)
+
+        return hook
+
+    def __enter__(self) -> AttentionRecorder:
+        handles = [self.lm.model.register_forward_pre_hook(self._clear)]
+        for p, part in enumerate(self.lm.parts):
+            target = part.attention if self.lm.family.weights_from == "output" else part.attention.dropout
+            handles.append(target.register_forward_hook(self._weights_hook(p)))
+            if self.want_values:
+                handles.append(part.value.register_forward_hook(self._keep(self.values)))
+            if self.want_qk:
+                handles.append(part.query.register_forward_hook(self._keep(self.queries)))
+                handles.append(part.key.register_forward_hook(self._keep(self.keys)))
+        for h in handles:
+            self._stack.callback(h.remove)
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self._stack.close()
+
+    def attention(self) -> torch.Tensor:
+        """Stacked weights [batch, layers, heads, tokens, tokens]."""
+        if len(self.weights) != self.lm.num_layers:
+            raise HeadcountError(
+                f"captured {len(self.weights)} attention layers, expected {self.lm.num_layers}"
+            )
+        w = self.weights
+        batch = w[0].shape[0] if w[0].dim() == 4 else 1
+        return torch.stack([x.reshape(batch, self.lm.num_heads, *x.shape[-2:]) for x in w], dim=1)
+
+
+class HeadGates:
+    """Context manager: multiply each head's context vector by a gate.
+
+    The gate sits on the input of each layer's attention output projection
+    W_O, where the heads' context vectors are still side by side:
+    ``ctx[b, t, h*d:(h+1)*d] *= gate[layer, h]``. A gate of 1 leaves the model
+    unchanged, 0 removes exactly that head's contribution. ``gates`` may require
+    grad, so d loss / d gate is the head-importance score of Michel et al. (2019).
+
+    Parameters
+    ----------
+    lm : LoadedModel
+    gates : torch.Tensor of shape (layers, heads)
+    """
+
+    def __init__(self, lm: LoadedModel, gates: torch.Tensor) -> None:
+        if tuple(gates.shape) != (lm.num_layers, lm.num_heads):
+            raise HeadcountError(
+                f"gates must have shape ({lm.num_layers}, {lm.num_heads}), got {tuple(gates.shape)}"
+            )
+        self.lm = lm
+        self.gates = gates
+        self.counter = _CallCounter()
+        self._stack = ExitStack()
+
+    def _hook(self, _m: nn.Module, inp: tuple) -> tuple:
+        layer = self.counter.next()
+        x = inp[0]
+        h = self.lm.num_heads
+        gated = (x.unflatten(-1, (h, -1)) * self.gates[layer].to(x.dtype)[:, None]).flatten(-2)
+        return (gated, *inp[1:])
+
+    def __enter__(self) -> HeadGates:
+        self._stack.callback(self.lm.model.register_forward_pre_hook(self.counter.reset).remove)
+        for part in {id(p.out_proj): p for p in self.lm.parts}.values():
+            self._stack.callback(part.out_proj.register_forward_pre_hook(self._hook).remove)
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self._stack.close()
+
+
+@dataclass
+class Capture:
+    """What one captured forward pass saw, as numpy arrays."""
+
+    batch: Batch
+    attention: np.ndarray
+    """[batch, layers, heads, tokens, tokens] (padded; padding rows/cols are meaningless)."""
+    logits: np.ndarray | None
+    """[batch, labels] for sequence classification, else None."""
+    values: np.ndarray | None = None
+    """[batch, layers, tokens, heads, head_dim] value vectors, if asked for."""
+    out_weight: np.ndarray | None = None
+    """[layers, hidden, heads*head_dim] W_O per layer, if values were asked for."""
+    out_bias: np.ndarray | None = None
+    """[layers, hidden] output-projection bias, if values were asked for."""
+
+    def sentence(self, b: int = 0) -> np.ndarray:
+        """Attention of sentence ``b`` without padding: [layers, heads, n, n]."""
+        idx = self.batch.real_index[b]
+        return self.attention[b][:, :, idx][:, :, :, idx]
+
+
+def run(
+    lm: LoadedModel,
+    texts: Sequence[str] | str,
+    *,
+    values: bool = False,
+    gates: torch.Tensor | None = None,
+) -> Capture:
+    """Run the model on ``texts`` and capture every head's attention.
+
+    Parameters
+    ----------
+    lm : LoadedModel
+    texts : str or sequence of str
+    values : bool
+        Also capture value vectors and W_O (needed for value-weighted attention).
+    gates : tensor (layers, heads), optional
+        Head gates to apply during the pass.
+    """
+    batch = encode(lm, texts)
+    with ExitStack() as stack, torch.no_grad():
+        rec = stack.enter_context(AttentionRecorder(lm, values=values))
+        if gates is not None:
+            stack.enter_context(HeadGates(lm, gates))
+        out = lm.model(**batch.model_inputs())
+        attention = rec.attention().numpy()
+        logits = out.logits.numpy() if lm.has_prediction else None
+        cap = Capture(batch=batch, attention=attention, logits=logits)
+        if values:
+            n_b, n_t = batch.input_ids.shape
+            cap.values = torch.stack(
+                [v.reshape(n_b, n_t, lm.num_heads, -1) for v in rec.values], dim=1
+            ).numpy()
+            projs = [lm.parts[p].out_proj for p in rec.order]
+            cap.out_weight = torch.stack([m.weight for m in projs]).numpy()
+            cap.out_bias = torch.stack(
+                [m.bias if m.bias is not None else torch.zeros(m.out_features) for m in projs]
+            ).numpy()
+    return cap

@@ -1,0 +1,80 @@
+"""``headcount analyze``: one sentence, its prediction and every head's metrics."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+import numpy as np
+
+from inspector.cli.common import add_model_command, load_model
+from inspector.errors import HeadcountError
+
+_TABLE_COLUMNS = (
+    ("entropy", "ent"),
+    ("entropy_normalized", "ent/ln"),
+    ("distance", "dist"),
+    ("special_share", "special"),
+    ("self_share", "self"),
+    ("prev_share", "prev"),
+    ("next_share", "next"),
+    ("confidence", "conf"),
+)
+
+
+def analysis_json(result) -> dict:
+    """The stable JSON document of ``headcount analyze --json``."""
+    pred = result.prediction
+    return {
+        "model": result.model_name,
+        "text": result.text,
+        "tokens": list(result.tokens),
+        "special": [bool(s) for s in result.special],
+        "prediction": None if pred is None else {"label": pred.label, "probabilities": pred.probabilities},
+        "heads": result.heads_table(),
+    }
+
+
+def _print_table(result, out) -> None:
+    pred = result.prediction
+    print(f"model: {result.model_name}", file=out)
+    print(f"tokens ({len(result.tokens)}): {' '.join(result.tokens)}", file=out)
+    if pred is not None:
+        top = ", ".join(f"{lab} {p:.3f}" for lab, p in pred.top(3))
+        print(f"prediction: {pred.label}   (top: {top})", file=out)
+    header = "layer head " + " ".join(f"{short:>8}" for _, short in _TABLE_COLUMNS)
+    print(header, file=out)
+    for row in result.heads_table():
+        cells = " ".join(f"{row[name]:8.3f}" for name, _ in _TABLE_COLUMNS)
+        print(f"{row['layer']:5d} {row['head']:4d} {cells}", file=out)
+
+
+def cmd_analyze(args: argparse.Namespace) -> int:
+    from inspector.measures.analysis import analyze_sentence
+
+    if not args.text or not args.text.strip():
+        raise HeadcountError("--text is empty")
+    lm = load_model(args)
+    result = analyze_sentence(lm, args.text)
+    if args.save_attention:
+        from inspector.figures.files import save_npz
+
+        save_npz(Path(args.save_attention), attention=result.attention.astype(np.float32))
+    if args.json:
+        json.dump(analysis_json(result), sys.stdout)
+        sys.stdout.write("\n")
+    else:
+        _print_table(result, sys.stdout)
+    return 0
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = add_model_command(sub, "analyze", "analyse one sentence: prediction and per-head metrics")
+    p.add_argument("--text", required=True, help="the sentence to analyse")
+    p.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
+    p.add_argument(
+        "--save-attention", metavar="FILE.npz", help="write array 'attention' [layers, heads, n, n]"
+    )
+    p.set_defaults(func=cmd_analyze)

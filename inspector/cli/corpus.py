@@ -1,0 +1,264 @@
+"""The ``corpus`` sub-command: analyse a whole labelled evaluation set.
+
+    headcount corpus MODEL_DIR DATA_FILE --out DIR [options]
+
+Writes the files listed in :mod:`inspector.corpus.report` into DIR, prints a short
+report (or, with ``--json``, the summary document) on stdout and a progress bar
+on stderr.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from typing import NoReturn
+
+from inspector.cli.common import add_model_command, load_model
+from inspector.corpus.dataset import BAD_ROW_POLICIES, read_labelled
+from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
+from inspector.corpus.settings import CorpusSettings
+from inspector.errors import HeadcountError
+
+_FORMATS = ("auto", "csv", "jsonl")
+_SHOWN_BAD_ROWS = 10
+
+
+def _orders(text: str) -> tuple[str, ...]:
+    names = tuple(n.strip() for n in text.split(",") if n.strip())
+    bad = [n for n in names if n not in PRUNING_ORDERS]
+    if bad:
+        raise HeadcountError(
+            f"unknown pruning order '{bad[0]}' (use: {', '.join(PRUNING_ORDERS)}, or 'none')"
+        )
+    return names
+
+
+def settings_from_args(args: argparse.Namespace) -> CorpusSettings:
+    """The :class:`CorpusSettings` the options ask for."""
+    orders = () if args.orders.strip().lower() == "none" else _orders(args.orders)
+    return CorpusSettings(
+        batch_size=args.batch_size,
+        js_rows=None if args.js_rows == 0 else args.js_rows,
+        group_threshold=args.group_threshold,
+        importance=not args.no_importance,
+        orders=orders,
+        prune_every=args.prune_every,
+        prune_subset=args.prune_subset,
+        max_drop=args.max_drop,
+        remove=args.remove,
+        mask_order=args.mask_order,
+        seed=args.seed,
+    )
+
+
+class _Bar:
+    """tqdm progress on stderr, relabelled per phase."""
+
+    def __init__(self, enabled: bool) -> None:
+        self.enabled = enabled
+        self.bar = None
+
+    def phase(self, name: str) -> None:
+        if self.bar is not None:
+            self.bar.set_description(name)
+
+    def progress(self, done: int, total: int) -> None:
+        if not self.enabled:
+            return
+        if self.bar is None:
+            from tqdm import tqdm
+
+            self.bar = tqdm(total=total, unit="batch", file=sys.stderr, desc="scan", leave=False)
+        self.bar.total = total
+        self.bar.update(done - self.bar.n)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+
+
+def _print_report(summary: dict, out_dir: str, out) -> None:
+    data = summary["data"]
+    print(f"model: {summary['model']}   data: {data['file']} ({data['utterances']} utterances)", file=out)
+    bad = data["bad_rows"]
+    if bad:
+        print(f"skipped {len(bad)} bad row(s):", file=out)
+        for b in bad[:_SHOWN_BAD_ROWS]:
+            print(f"  line {b['row']}: {b['reason']}", file=out)
+        if len(bad) > _SHOWN_BAD_ROWS:
+            print(f"  ... and {len(bad) - _SHOWN_BAD_ROWS} more (see summary.json)", file=out)
+    if data["unknown_labels"]:
+        listed = ", ".join(f"{k} ({v})" for k, v in data["unknown_labels"].items())
+        print(f"labels the model does not know: {listed}", file=out)
+    print(f"accuracy {summary['accuracy']:.4f}   macro-F1 {summary['macro_f1']:.4f}", file=out)
+    misfires = summary["misfires"]
+    print(f"misfires: {len(misfires)}" + (" (most confident first)" if misfires else ""), file=out)
+    for m in misfires[:5]:
+        print(
+            f"  line {m['row']}: {m['expected']} -> {m['predicted']} ({m['confidence']:.2f})  {m['text']}",
+            file=out,
+        )
+    imp = summary["importance"]
+    if imp:
+        top = ", ".join(f"L{h['layer']}H{h['head']} {h['importance']:.2f}" for h in imp["most_important"][:3])
+        low = ", ".join(
+            f"L{h['layer']}H{h['head']} {h['importance']:.2f}" for h in imp["least_important"][:3]
+        )
+        print(f"most important heads: {top}   least: {low}", file=out)
+    red = summary["redundancy"]
+    groups = "; ".join(" ".join(f"L{h['layer']}H{h['head']}" for h in g) for g in red["groups"][:5]) or "none"
+    print(f"near-duplicate groups (JS <= {red['group_threshold']:g} bits): {groups}", file=out)
+    pr = summary["pruning"]
+    if pr:
+        after = "not measured" if pr["accuracy_after"] is None else f"{pr['accuracy_after']:.4f}"
+        print(
+            f"pruning ({pr['mask_order']}): remove {pr['heads_removed']} head(s) "
+            f"({pr['fraction_removed']:.0%}), accuracy {pr['accuracy_before']:.4f} -> {after}",
+            file=out,
+        )
+        print(f"caution: {CAUTION}", file=out)
+    for note in summary["notes"]:
+        print(f"note: {note}", file=out)
+    print(f"written to {out_dir}", file=out)
+
+
+def cmd_corpus(args: argparse.Namespace) -> int:
+    from inspector.corpus.report import summary_dict, write_report
+    from inspector.corpus.run import run_corpus
+
+    settings = settings_from_args(args)
+    lm = load_model(args)
+    settings.check(lm)
+    data = read_labelled(
+        args.data,
+        text_field=args.text_field,
+        label_field=args.label_field,
+        fmt=args.format,
+        known_labels=lm.labels if lm.has_prediction else None,
+        on_bad_row=args.on_bad_row,
+    )
+    bar = _Bar(enabled=not args.quiet)
+    try:
+        report = run_corpus(lm, data, settings, on_progress=bar.progress, on_phase=bar.phase)
+    finally:
+        bar.close()
+    write_report(report, args.out, figures=not args.no_figures)
+    summary = summary_dict(report)
+    if args.json:
+        json.dump(summary, sys.stdout, ensure_ascii=False)
+        sys.stdout.write("\n")
+    else:
+        _print_report(summary, args.out, sys.stdout)
+    return 0
+
+
+def _one_line_error(parser: argparse.ArgumentParser):
+    def error(message: str) -> NoReturn:
+        print(f"headcount {parser.prog.split()[-1]}: error: {message}", file=sys.stderr)
+        raise SystemExit(2)
+
+    return error
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    """Add ``corpus`` to the CLI's sub-commands."""
+    p = add_model_command(
+        sub,
+        "corpus",
+        "analyse a labelled evaluation set: accuracy, misfires, "
+        "head importance, redundancy and a pruning simulation",
+    )
+    p.error = _one_line_error(p)  # type: ignore[method-assign]
+    d = CorpusSettings()
+    p.epilog = (
+        f"Pruning: {CAUTION} Files: summary.json, heads.csv, similar_pairs.csv, pruning.csv, "
+        "prune_mask.json, and confusion_matrix / head_importance / head_similarity / pruning_curve (.png, .svg)."
+    )
+    p.add_argument("data", metavar="DATA_FILE", help="labelled set: .csv with a header row, or .jsonl")
+    p.add_argument(
+        "--out", required=True, metavar="DIR", help="folder for the output files (created if needed)"
+    )
+    p.add_argument("--text-field", default="text", help="column/key holding the utterance (default: text)")
+    p.add_argument("--label-field", default="label", help="column/key holding the label (default: label)")
+    p.add_argument(
+        "--format", choices=_FORMATS, default="auto", help="data format (default: from the suffix)"
+    )
+    p.add_argument(
+        "--on-bad-row",
+        choices=BAD_ROW_POLICIES,
+        default="skip",
+        help="skip bad rows and list them, or fail (default: skip)",
+    )
+    p.add_argument(
+        "--batch-size", type=int, default=d.batch_size, help=f"utterances per batch (default: {d.batch_size})"
+    )
+    p.add_argument(
+        "--orders",
+        default=",".join(d.orders),
+        metavar="LIST",
+        help=f"pruning orders, comma-separated from {', '.join(PRUNING_ORDERS)}, or 'none' "
+        f"(default: {','.join(d.orders)})",
+    )
+    p.add_argument(
+        "--mask-order",
+        choices=PRUNING_ORDERS,
+        default=None,
+        help="order prune_mask.json is taken from (default: the first of --orders)",
+    )
+    p.add_argument(
+        "--max-drop",
+        type=float,
+        default=d.max_drop,
+        help="export the most heads whose removal never cost more than this accuracy "
+        f"(fraction, default {d.max_drop:g}; 0.01 = one point)",
+    )
+    p.add_argument(
+        "--remove",
+        type=int,
+        default=None,
+        metavar="N",
+        help="export exactly the first N heads of the mask order instead",
+    )
+    p.add_argument(
+        "--prune-every",
+        type=int,
+        default=d.prune_every,
+        metavar="K",
+        help="measure accuracy after every K removed heads (default: 1, exact)",
+    )
+    p.add_argument(
+        "--prune-subset",
+        type=int,
+        default=None,
+        metavar="N",
+        help="evaluate pruning steps on N utterances drawn with the seed (default: all)",
+    )
+    p.add_argument(
+        "--js-rows",
+        type=int,
+        default=d.js_rows,
+        metavar="N",
+        help=f"query rows compared per batch for head redundancy; 0 = all rows (default: {d.js_rows})",
+    )
+    p.add_argument(
+        "--group-threshold",
+        type=float,
+        default=d.group_threshold,
+        metavar="BITS",
+        help=f"near-duplicate cut in bits of mean JS divergence (default: {d.group_threshold:g})",
+    )
+    p.add_argument(
+        "--seed",
+        type=int,
+        default=d.seed,
+        help=f"seed for the random order and row draws (default: {d.seed})",
+    )
+    p.add_argument("--no-importance", action="store_true", help="skip the gradient pass")
+    p.add_argument("--no-figures", action="store_true", help="write no PNG/SVG figures")
+    p.add_argument("--json", action="store_true", help="print the summary JSON on stdout")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_corpus)
+
+
+__all__ = ["cmd_corpus", "register", "settings_from_args"]

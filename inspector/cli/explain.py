@@ -1,0 +1,274 @@
+"""The ``explain`` sub-command: why did the model give this sentence that label?"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+from typing import TextIO
+
+import numpy as np
+
+from inspector.cli.common import add_model_command, load_model
+from inspector.errors import HeadcountError
+from inspector.explanation.explain import CAUTION, RULE_NAMES, LabelEvidence, SentenceExplanation
+from inspector.explanation.faithfulness import METHOD_LABELS
+from inspector.explanation.gradients import BASELINES, RULES
+from inspector.explanation.occlusion import OCCLUSION_MODES
+from inspector.explanation.whatif import WhatIfComparison
+from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
+
+COLUMNS = (
+    ("rollout", "rollout"),
+    ("value_weighted", "value-wtd"),
+    ("grad_rollout", "grad-roll"),
+    ("integrated_gradients", "int-grad"),
+    ("occlusion", "occlusion"),
+)
+"""Relevance columns of the text table: (JSON name, header)."""
+
+
+def _floats(values: np.ndarray) -> list[float]:
+    return [float(v) for v in np.asarray(values).ravel()]
+
+
+def _rho(value: float | None) -> str:
+    return "n/a" if value is None else f"{value:+.2f}"
+
+
+# ---------------------------------------------------------------------------
+# JSON
+# ---------------------------------------------------------------------------
+
+
+def label_json(ev: LabelEvidence) -> dict:
+    ig = ev.integrated_gradients
+    return {
+        "roles": list(ev.roles),
+        "probability": ev.probability,
+        "logit": ev.logit,
+        "grad_rollout": _floats(ev.grad_rollout),
+        "integrated_gradients": {
+            "attributions": _floats(ig.attributions),
+            "baseline": ig.baseline,
+            "steps": ig.steps,
+            "rule": ig.rule,
+            "logit_input": ig.logit_input,
+            "logit_baseline": ig.logit_baseline,
+            "completeness_error": ig.completeness_error,
+            "completeness_relative": ig.completeness_relative
+            if np.isfinite(ig.completeness_relative)
+            else None,
+        },
+        "occlusion": _floats(ev.occlusion),
+        "faithfulness": dict(ev.faithfulness),
+        "hints": list(ev.hints),
+    }
+
+
+def explanation_json(ex: SentenceExplanation) -> dict:
+    """The stable JSON document of ``headcount explain --json`` for one sentence."""
+    return {
+        "model": ex.model_name,
+        "text": ex.text,
+        "words": list(ex.words),
+        "tokens": list(ex.tokens),
+        "prediction": {"label": ex.prediction.label, "probabilities": ex.prediction.probabilities},
+        "expected": ex.expected,
+        "occlusion_mode": ex.occlusion_mode,
+        "occlusion_replacement": ex.occlusion_replacement,
+        "rollout": _floats(ex.rollout),
+        "value_weighted": _floats(ex.value_weighted),
+        "labels": {ev.label: label_json(ev) for ev in ex.labels},
+        "caution": CAUTION,
+    }
+
+
+def comparison_json(cmp: WhatIfComparison) -> dict:
+    """The ``compare`` member of the JSON document: the edited sentence and the head changes."""
+    return {
+        "edited": explanation_json(cmp.edited),
+        "labels": list(cmp.labels),
+        "prediction_changed": cmp.prediction_changed,
+        "metric": cmp.metric,
+        "metric_difference": cmp.difference.tolist(),
+        "top_heads": [
+            {"layer": h.layer, "head": h.head, "before": h.before, "after": h.after, "change": h.change}
+            for h in cmp.top_heads
+        ],
+        "word_changes": [
+            {"op": c.op, "original": list(c.original), "edited": list(c.edited)} for c in cmp.word_changes
+        ],
+    }
+
+
+# ---------------------------------------------------------------------------
+# Text
+# ---------------------------------------------------------------------------
+
+
+def _print_label(ex: SentenceExplanation, ev: LabelEvidence, out: TextIO) -> None:
+    roles = " + ".join(ev.roles)
+    print(f"\n== {ev.label} ({roles}, p={ev.probability:.3f}, logit {ev.logit:+.3f}) ==", file=out)
+    width = max([4, *(len(w) for w in ex.words)])
+    print(f"{'word':<{width}} " + " ".join(f"{head:>10}" for _, head in COLUMNS), file=out)
+    table = ev.relevances(ex)
+    for i, word in enumerate(ex.words):
+        print(f"{word:<{width}} " + " ".join(f"{table[name][i]:10.3g}" for name, _ in COLUMNS), file=out)
+    ig = ev.integrated_gradients
+    rel = ig.completeness_relative
+    rel_text = f" (relative {rel:.1e})" if np.isfinite(rel) else ""
+    print(
+        f"Integrated Gradients: baseline '{ig.baseline}', {ig.steps} steps, {RULE_NAMES[ig.rule]}; "
+        f"logit {ig.logit_input:+.4f} at the input, {ig.logit_baseline:+.4f} at the baseline; "
+        f"completeness error {ig.completeness_error:+.2e}{rel_text}",
+        file=out,
+    )
+
+
+def _print_faithfulness(ex: SentenceExplanation, out: TextIO) -> None:
+    """The faithfulness table: methods down, labels across, then the hints."""
+    print(f"\nagreement with occlusion (Spearman rho over {len(ex.words)} words):", file=out)
+    width = max(len(ev.label) for ev in ex.labels) + 2
+    print(f"{'method':<26}" + "".join(f"{ev.label:>{width}}" for ev in ex.labels), file=out)
+    for method, name in METHOD_LABELS.items():
+        cells = "".join(f"{_rho(ev.faithfulness.get(method)):>{width}}" for ev in ex.labels)
+        print(f"{name:<26}{cells}", file=out)
+    for ev in ex.labels:
+        for hint in ev.hints:
+            print(f"hint ({ev.label}): {hint}", file=out)
+
+
+def print_explanation(ex: SentenceExplanation, out: TextIO) -> None:
+    """Human-readable explanation of one sentence."""
+    pred = ex.prediction
+    print(f"model: {ex.model_name}", file=out)
+    print(f"text: {ex.text}", file=out)
+    top = ", ".join(f"{lab} {p:.3f}" for lab, p in pred.top(3))
+    line = f"prediction: {pred.label}   (top: {top})"
+    if ex.expected is not None:
+        verdict = "misfire" if ex.misfire else "as expected"
+        line += f"\nexpected: {ex.expected} (p={pred.probabilities[ex.expected]:.3f}): {verdict}"
+    print(line, file=out)
+    occ = "word removed" if ex.occlusion_mode == "remove" else f"word replaced by {ex.occlusion_replacement}"
+    print(
+        "columns: attention rollout and value-weighted rollout (same for every label), gradient-weighted "
+        f"rollout, Integrated Gradients (logit), occlusion (probability drop, {occ})",
+        file=out,
+    )
+    for ev in ex.labels:
+        _print_label(ex, ev, out)
+    _print_faithfulness(ex, out)
+
+
+def print_comparison(cmp: WhatIfComparison, out: TextIO) -> None:
+    """Human-readable what-if comparison (the edited sentence's explanation is printed separately)."""
+    a, b = cmp.original.prediction, cmp.edited.prediction
+    print("\n== what-if ==", file=out)
+    print(f"original: {cmp.original.text}\n  -> {a.label} ({a.probabilities[a.label]:.3f})", file=out)
+    print(f"edited:   {cmp.edited.text}\n  -> {b.label} ({b.probabilities[b.label]:.3f})", file=out)
+    print("prediction " + ("changed" if cmp.prediction_changed else "unchanged"), file=out)
+    for label in cmp.labels:
+        shift = cmp.probability_shift(label)
+        print(
+            f"  p({label}): {a.probabilities[label]:.3f} -> {b.probabilities[label]:.3f} ({shift:+.3f})",
+            file=out,
+        )
+    edits = [c for c in cmp.word_changes if c.op != "equal"]
+    for c in edits:
+        old = " ".join(cmp.original.words[c.original[0] : c.original[1]]) or "-"
+        new = " ".join(cmp.edited.words[c.edited[0] : c.edited[1]]) or "-"
+        print(f"  {c.op}: '{old}' -> '{new}'", file=out)
+    print(f"heads that changed most in {METRIC_LABELS[cmp.metric].lower()}:", file=out)
+    for h in cmp.top_heads:
+        print(f"  layer {h.layer} head {h.head}: {h.before:.3f} -> {h.after:.3f} ({h.change:+.3f})", file=out)
+
+
+# ---------------------------------------------------------------------------
+# Command
+# ---------------------------------------------------------------------------
+
+
+def cmd_explain(args: argparse.Namespace) -> int:
+    from inspector.explanation.explain import explain_sentence, require_classifier
+    from inspector.explanation.whatif import compare_sentences
+
+    if not args.text or not args.text.strip():
+        raise HeadcountError("--text is empty")
+    if args.steps < 2:
+        raise HeadcountError("--steps must be at least 2")
+    if args.figure:
+        from inspector.figures.explanation import check_figure_path
+
+        check_figure_path(Path(args.figure))
+    lm = load_model(args)
+    require_classifier(lm)
+    options = dict(steps=args.steps, occlusion=args.occlusion, baseline=args.baseline, rule=args.rule)
+    comparison = None
+    if args.compare is not None:
+        comparison = compare_sentences(
+            lm, args.text, args.compare, expected=args.expected, metric=args.metric, top=args.top, **options
+        )
+        explanation = comparison.original
+    else:
+        explanation = explain_sentence(lm, args.text, expected=args.expected, **options)
+    if args.figure:
+        from inspector.figures.explanation import save_explanation_figure
+
+        save_explanation_figure(Path(args.figure), explanation, comparison)
+    if args.json:
+        doc = explanation_json(explanation)
+        if comparison is not None:
+            doc["compare"] = comparison_json(comparison)
+        json.dump(doc, sys.stdout, allow_nan=False)
+        sys.stdout.write("\n")
+        return 0
+    print_explanation(explanation, sys.stdout)
+    if comparison is not None:
+        print("\n-- edited sentence --", file=sys.stdout)
+        print_explanation(comparison.edited, sys.stdout)
+        print_comparison(comparison, sys.stdout)
+    print(f"\ncaution: {CAUTION}", file=sys.stdout)
+    if args.figure:
+        print(f"figure written to {args.figure}", file=sys.stdout)
+    return 0
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    """Add ``explain MODEL_DIR --text ...`` to the command line."""
+    p = add_model_command(
+        sub, "explain", "explain one prediction: gradient-weighted rollout, Integrated Gradients, occlusion"
+    )
+    p.add_argument("--text", required=True, help="the sentence to explain")
+    p.add_argument("--expected", metavar="LABEL", help="the label the sentence should have had")
+    p.add_argument("--steps", type=int, default=64, help="Integrated Gradients steps (default 64)")
+    p.add_argument(
+        "--occlusion",
+        choices=OCCLUSION_MODES,
+        default="remove",
+        help="leave each word out, or replace it by the mask token (default remove)",
+    )
+    p.add_argument(
+        "--baseline",
+        choices=BASELINES,
+        default="pad",
+        help="Integrated Gradients baseline: pad-token embeddings with special tokens kept, "
+        "or all-zero embeddings (default pad)",
+    )
+    p.add_argument(
+        "--rule", choices=RULES, default="gauss-legendre", help="integration rule (default gauss-legendre)"
+    )
+    p.add_argument("--compare", metavar="EDITED", help="an edited sentence to compare with")
+    p.add_argument(
+        "--metric",
+        choices=METRIC_NAMES,
+        default="entropy",
+        help="per-head metric for --compare (default entropy)",
+    )
+    p.add_argument(
+        "--top", type=int, default=5, help="how many most-changed heads --compare lists (default 5)"
+    )
+    p.add_argument("--json", action="store_true", help="print one JSON object instead of text")
+    p.add_argument("--figure", metavar="FILE", help="write a figure of the relevances (.png, .svg or .pdf)")
+    p.set_defaults(func=cmd_explain)

@@ -1,0 +1,214 @@
+"""Pruning simulation: switch heads off one after another and watch accuracy.
+
+Heads are silenced through the gates of :class:`inspector.checkpoint.capture.HeadGates`
+(gate 0 removes exactly the head's contribution to the output projection); no
+weight is changed and nothing is retrained. The curve therefore shows what a
+pruned model would do *without* fine-tuning afterwards: a model pruned on its
+strength must be re-validated (and usually fine-tuned) before it ships.
+
+Orders (which head goes next):
+
+``importance``
+    lowest layer-normalised gate-gradient importance first (Michel et al. 2019).
+``random``
+    a seeded random permutation: the baseline any informed order should beat.
+``duplicates``
+    greedy on the redundancy matrix: repeatedly take the two remaining heads
+    with the lowest mean Jensen-Shannon divergence and remove the less important
+    one (the later one if no importance is known), so one head of each
+    near-duplicate pair survives longest.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from inspector.errors import HeadcountError
+
+PRUNING_ORDERS: tuple[str, ...] = ("importance", "random", "duplicates")
+CAUTION = (
+    "Measured without retraining: the curve shows heads switched off in the trained model. "
+    "A pruned model must be re-validated before use."
+)
+
+Head = tuple[int, int]
+
+
+def importance_order(importance: np.ndarray) -> list[Head]:
+    """Heads sorted by ascending importance (ties by layer, then head).
+
+    Parameters
+    ----------
+    importance : ndarray of shape (layers, heads)
+        Typically the layer-normalised scores.
+
+    References
+    ----------
+    Michel, Levy & Neubig (2019), "Are Sixteen Heads Really Better than One?",
+    section 4.2 (prune the heads with the smallest importance first).
+    """
+    layers, heads = importance.shape
+    flat = np.lexsort((np.arange(layers * heads), importance.ravel()))
+    return [(int(f // heads), int(f % heads)) for f in flat]
+
+
+def random_order(num_layers: int, num_heads: int, seed: int) -> list[Head]:
+    """A seeded random permutation of all heads (numpy ``default_rng(seed)``)."""
+    flat = np.random.default_rng(seed).permutation(num_layers * num_heads)
+    return [(int(f // num_heads), int(f % num_heads)) for f in flat]
+
+
+def duplicates_order(js: np.ndarray, num_heads: int, importance: np.ndarray | None = None) -> list[Head]:
+    """Greedy removal of one head of the currently most similar pair.
+
+    Parameters
+    ----------
+    js : ndarray of shape (k, k)
+        Mean pairwise Jensen-Shannon divergences (k = layers * heads).
+    num_heads : int
+    importance : ndarray of shape (layers, heads), optional
+        Breaks the choice within a pair: the less important head goes.
+
+    Returns
+    -------
+    list of (layer, head), all k heads.
+
+    Notes
+    -----
+    Our own heuristic (no published source): it removes redundancy before
+    anything else.
+    """
+    k = len(js)
+    score = np.zeros(k) if importance is None else np.asarray(importance, dtype=float).ravel()
+    alive = list(range(k))
+    order: list[int] = []
+    dist = np.array(js, dtype=float)
+    np.fill_diagonal(dist, np.inf)
+    while len(alive) > 1:
+        sub = dist[np.ix_(alive, alive)]
+        a, b = np.unravel_index(int(np.argmin(sub)), sub.shape)
+        i, j = sorted((alive[a], alive[b]))
+        victim = i if score[i] < score[j] else j
+        order.append(victim)
+        alive.remove(victim)
+    order.extend(alive)
+    return [(f // num_heads, f % num_heads) for f in order]
+
+
+def make_order(
+    name: str,
+    num_layers: int,
+    num_heads: int,
+    *,
+    importance: np.ndarray | None = None,
+    js: np.ndarray | None = None,
+    seed: int = 0,
+) -> list[Head]:
+    """The removal order called ``name`` (one of :data:`PRUNING_ORDERS`)."""
+    if name == "importance":
+        if importance is None:
+            raise HeadcountError("the 'importance' pruning order needs head importance")
+        return importance_order(importance)
+    if name == "random":
+        return random_order(num_layers, num_heads, seed)
+    if name == "duplicates":
+        if js is None:
+            raise HeadcountError("the 'duplicates' pruning order needs the head redundancy matrix")
+        return duplicates_order(js, num_heads, importance)
+    raise HeadcountError(f"unknown pruning order '{name}' (use: {', '.join(PRUNING_ORDERS)})")
+
+
+def step_counts(total: int, every: int) -> list[int]:
+    """Numbers of removed heads at which accuracy is measured: 0, every, 2*every, ..., total."""
+    if every < 1:
+        raise HeadcountError("pruning must evaluate every 1 or more heads")
+    steps = list(range(0, total + 1, every))
+    if steps[-1] != total:
+        steps.append(total)
+    return steps
+
+
+def gates_for(removed: Sequence[Head], num_layers: int, num_heads: int) -> np.ndarray:
+    """Gate values [layers, heads]: 0 for removed heads, 1 elsewhere."""
+    gates = np.ones((num_layers, num_heads), dtype=np.float32)
+    for layer, head in removed:
+        gates[layer, head] = 0.0
+    return gates
+
+
+@dataclass
+class PruningCurve:
+    """Accuracy of the model as heads are switched off in one order."""
+
+    order_name: str
+    order: list[Head]
+    """Every head, in removal order."""
+    steps: list[int]
+    """Number of heads removed at each measured point (starts at 0)."""
+    accuracy: list[float]
+    utterances: int
+    """Utterances evaluated at each step (the whole set unless capped)."""
+
+    @property
+    def fractions(self) -> list[float]:
+        total = len(self.order)
+        return [s / total for s in self.steps]
+
+
+def largest_safe_step(curve: PruningCurve, max_drop: float) -> int:
+    """The most heads removable while accuracy never fell more than ``max_drop`` below the start.
+
+    Walks the curve from 0 removed heads and stops before the first measured
+    step whose accuracy is below ``accuracy[0] - max_drop``; returns the number
+    of heads removed at the last step before that (0 if none qualifies).
+    ``max_drop`` is a fraction (0.01 = one accuracy point).
+    """
+    if max_drop < 0:
+        raise HeadcountError("the accuracy tolerance must not be negative")
+    floor = curve.accuracy[0] - max_drop - 1e-12
+    best = 0
+    for removed, acc in zip(curve.steps, curve.accuracy):
+        if acc < floor:
+            break
+        best = removed
+    return best
+
+
+def mask_json(removed: Sequence[Head]) -> dict[str, list[int]]:
+    """``{"layer": [head, ...]}`` with layer numbers as strings, layers and heads from 0, sorted."""
+    out: dict[int, list[int]] = {}
+    for layer, head in removed:
+        out.setdefault(int(layer), []).append(int(head))
+    return {str(layer): sorted(heads) for layer, heads in sorted(out.items())}
+
+
+@dataclass
+class PruningResult:
+    """All simulated curves and the chosen set of heads to remove."""
+
+    curves: list[PruningCurve]
+    mask_order: str
+    """The order the mask was taken from."""
+    removed: list[Head]
+    """The heads chosen for removal (a prefix of that order)."""
+    accuracy_before: float
+    accuracy_after: float
+    max_drop: float | None
+    """The tolerance used (None when the count was fixed by the caller)."""
+    every: int
+    subset: int | None
+    """Cap on the utterances evaluated per step (None = the whole set)."""
+    caution: str = CAUTION
+
+    @property
+    def mask(self) -> dict[str, list[int]]:
+        return mask_json(self.removed)
+
+    def curve(self, name: str) -> PruningCurve:
+        for c in self.curves:
+            if c.order_name == name:
+                return c
+        raise KeyError(name)

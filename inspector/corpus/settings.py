@@ -1,0 +1,66 @@
+"""The settings of a corpus run, importable without torch (the CLI builds its defaults from them)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+from inspector.corpus.pruning import PRUNING_ORDERS
+from inspector.corpus.redundancy import DEFAULT_GROUP_THRESHOLD, DEFAULT_JS_ROWS
+from inspector.errors import HeadcountError
+
+if TYPE_CHECKING:
+    from inspector.checkpoint.loader import LoadedModel
+
+
+@dataclass
+class CorpusSettings:
+    """Every knob of a corpus run (defaults are what the CLI uses)."""
+
+    batch_size: int = 32
+    js_rows: int | None = DEFAULT_JS_ROWS
+    """Real query rows compared per batch for redundancy (None = all)."""
+    group_threshold: float = DEFAULT_GROUP_THRESHOLD
+    importance: bool = True
+    orders: tuple[str, ...] = ("importance", "random")
+    """Pruning orders to simulate (empty = no pruning simulation)."""
+    prune_every: int = 1
+    """Measure accuracy after every this many removed heads."""
+    prune_subset: int | None = None
+    """Evaluate pruning steps on at most this many utterances (seeded draw); None = all."""
+    max_drop: float = 0.01
+    """Largest accuracy drop (fraction) allowed for the exported set of heads."""
+    remove: int | None = None
+    """Export exactly this many heads instead (overrides ``max_drop``)."""
+    mask_order: str | None = None
+    """Order the exported set is taken from (default: the first of ``orders``)."""
+    seed: int = 0
+
+    def check(self, lm: LoadedModel) -> None:
+        """Raise HeadcountError for settings that cannot work with ``lm``."""
+        if self.batch_size < 1:
+            raise HeadcountError("the batch size must be at least 1")
+        if self.js_rows is not None and self.js_rows < 1:
+            raise HeadcountError("the number of rows compared per batch must be at least 1")
+        if not 0 <= self.group_threshold <= 1:
+            raise HeadcountError("the near-duplicate threshold is in bits and must lie in [0, 1]")
+        for name in self.orders:
+            if name not in PRUNING_ORDERS:
+                raise HeadcountError(f"unknown pruning order '{name}' (use: {', '.join(PRUNING_ORDERS)})")
+        if "importance" in self.orders and not self.importance:
+            raise HeadcountError("the 'importance' pruning order needs the importance pass")
+        if self.prune_every < 1:
+            raise HeadcountError("pruning must evaluate every 1 or more heads")
+        if self.prune_subset is not None and self.prune_subset < 1:
+            raise HeadcountError("the pruning subset must hold at least 1 utterance")
+        if not 0 <= self.max_drop <= 1:
+            raise HeadcountError("the accuracy tolerance is a fraction in [0, 1] (0.01 = one point)")
+        total = lm.num_layers * lm.num_heads
+        if self.remove is not None and not 0 <= self.remove <= total:
+            raise HeadcountError(f"can remove 0 to {total} heads, not {self.remove}")
+        if self.mask_order is not None and self.mask_order not in self.orders:
+            raise HeadcountError(f"the mask order '{self.mask_order}' is not among the simulated orders")
+
+    @property
+    def chosen_mask_order(self) -> str | None:
+        return self.mask_order or (self.orders[0] if self.orders else None)

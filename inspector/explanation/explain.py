@@ -1,0 +1,356 @@
+"""Explain one prediction: what pushed a sentence toward the predicted and the expected label.
+
+:func:`explain_sentence` gathers, for each label of interest, the
+gradient-weighted attention rollout, Integrated Gradients and leave-one-word-out
+occlusion, next to the label-independent attention rollout and value-weighted
+rollout, all merged to words, plus a faithfulness read-out (Spearman rho of each
+relevance against occlusion). It returns one :class:`SentenceExplanation`.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from inspector.checkpoint import capture
+from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.tokens import make_view
+from inspector.errors import HeadcountError
+from inspector.explanation.faithfulness import faithfulness, faithfulness_hints, merge_to_words
+from inspector.explanation.gradients import (
+    CLASSIFICATION_POSITION,
+    Baseline,
+    Rule,
+    attention_gradients,
+    grad_weighted_rollout,
+    integrated_gradients,
+)
+from inspector.explanation.occlusion import OcclusionMode, occlude_words
+from inspector.measures.analysis import Prediction, analyze_sentence
+from inspector.measures.metrics import HeadMetrics
+from inspector.measures.rollout import attention_rollout
+
+CAUTION = (
+    "Attention weights alone are not a faithful explanation of a prediction "
+    "(Jain & Wallace 2019; Wiegreffe & Pinter 2019): check them against occlusion "
+    "and Integrated Gradients before acting on them."
+)
+
+RULE_NAMES = {"gauss-legendre": "Gauss-Legendre quadrature", "trapezoid": "trapezoid rule"}
+
+
+@dataclass
+class IntegratedGradientsResult:
+    """Integrated Gradients of one label's logit on the word embeddings."""
+
+    attributions: np.ndarray
+    """[words] attribution per word (sum over its pieces)."""
+    token_attributions: np.ndarray
+    """[n] attribution per piece (specials included)."""
+    baseline: str
+    """``pad`` (pad-token embeddings, special tokens kept) or ``zero``."""
+    steps: int
+    rule: str
+    """``gauss-legendre`` or ``trapezoid``."""
+    logit_input: float
+    logit_baseline: float
+
+    @property
+    def logit_difference(self) -> float:
+        return self.logit_input - self.logit_baseline
+
+    @property
+    def completeness_error(self) -> float:
+        """``sum_i IG_i - (F(x) - F(x'))`` over all pieces (completeness axiom: 0)."""
+        return float(self.token_attributions.sum() - self.logit_difference)
+
+    @property
+    def completeness_relative(self) -> float:
+        """``|completeness_error| / |F(x) - F(x')|`` (inf when the difference is 0)."""
+        diff = abs(self.logit_difference)
+        return abs(self.completeness_error) / diff if diff > 0 else float("inf")
+
+
+@dataclass
+class LabelEvidence:
+    """Everything that says what pushed the sentence toward one label."""
+
+    label: str
+    index: int
+    roles: tuple[str, ...]
+    """Why this label is shown: ``predicted``, ``expected``, ``compared`` (any of them)."""
+    probability: float
+    logit: float
+    grad_rollout: np.ndarray
+    """[words] gradient-weighted rollout, classification-token row, merged to words."""
+    grad_rollout_tokens: np.ndarray
+    """[n] the full classification-token row over pieces (specials included)."""
+    integrated_gradients: IntegratedGradientsResult
+    occlusion: np.ndarray
+    """[words] drop of this label's probability when each word is left out."""
+    faithfulness: dict[str, float | None]
+    """Spearman rho against occlusion per method (None when undefined)."""
+    hints: list[str]
+
+    def relevances(self, explanation: SentenceExplanation) -> dict[str, np.ndarray]:
+        """Word-level relevance per method (stable names), occlusion last."""
+        table = relevance_table(
+            explanation.rollout,
+            explanation.value_weighted,
+            self.grad_rollout,
+            self.integrated_gradients.attributions,
+        )
+        return {**table, "occlusion": self.occlusion}
+
+
+@dataclass
+class SentenceExplanation:
+    """One sentence explained for a few labels (the predicted one first)."""
+
+    model_name: str
+    text: str
+    tokens: list[str]
+    special: np.ndarray
+    word_ids: list[int | None]
+    words: list[str]
+    """The sentence's words (pieces merged, special tokens left out)."""
+    word_groups: list[list[int]]
+    """Piece positions of each word."""
+    prediction: Prediction
+    expected: str | None
+    attention: np.ndarray
+    """[layers, heads, n, n]."""
+    head_metrics: HeadMetrics
+    rollout: np.ndarray
+    """[words] attention rollout (Abnar & Zuidema 2020), classification-token row."""
+    value_weighted: np.ndarray
+    """[words] rollout over the row-normalised layer-level value-weighted attention."""
+    labels: list[LabelEvidence]
+    occlusion_mode: str
+    occlusion_replacement: str | None
+    timings: dict[str, float] = field(default_factory=dict)
+    """Seconds spent per part (``analysis``, ``attention_gradients``, ...) and ``total``."""
+
+    def evidence(self, label: str) -> LabelEvidence:
+        for ev in self.labels:
+            if ev.label == label:
+                return ev
+        raise KeyError(label)
+
+    @property
+    def predicted(self) -> LabelEvidence:
+        return self.evidence(self.prediction.label)
+
+    @property
+    def expected_evidence(self) -> LabelEvidence | None:
+        return None if self.expected is None else self.evidence(self.expected)
+
+    @property
+    def misfire(self) -> bool:
+        """True when an expected label was given and the model predicted another one."""
+        return self.expected is not None and self.expected != self.prediction.label
+
+
+def require_classifier(lm: LoadedModel) -> None:
+    """Raise a one-line error unless ``lm`` predicts one label per sentence."""
+    if lm.task == "encoder" or not lm.labels:
+        raise HeadcountError(f"{lm.name} is a bare encoder with no labels: there is no prediction to explain")
+    if not lm.has_prediction:
+        raise HeadcountError(f"{lm.name} labels tokens, not sentences: explain needs a sentence classifier")
+
+
+def label_index(lm: LoadedModel, label: str) -> int:
+    """Index of a label name, or a one-line error listing the known labels."""
+    try:
+        return lm.labels.index(label)
+    except ValueError:
+        shown = ", ".join(lm.labels[:20]) + (" ..." if len(lm.labels) > 20 else "")
+        raise HeadcountError(f"unknown label '{label}' (this model knows: {shown})") from None
+
+
+def value_weighted_rollout(layer_value_weighted: np.ndarray) -> np.ndarray:
+    """Attention rollout over value-weighted attention.
+
+    Parameters
+    ----------
+    layer_value_weighted : ndarray of shape (layers, n, n)
+        ``||sum_h a_ij^h f_h(x_j)||`` per layer.
+
+    Returns
+    -------
+    ndarray of shape (n, n)
+        Each layer's matrix divided by its row sums, then rolled up like
+        attention (``A = 0.5 W + 0.5 I``, ``R = A_L ... A_1``).
+
+    References
+    ----------
+    Kobayashi et al. (2020), "Attention is Not Only a Weight", eq. (6);
+    Abnar & Zuidema (2020), attention rollout.
+    """
+    w = np.asarray(layer_value_weighted, dtype=np.float64)
+    total = w.sum(-1, keepdims=True)
+    w = np.divide(w, total, out=np.full_like(w, 1.0 / w.shape[-1]), where=total > 0)
+    return attention_rollout(w[:, None])
+
+
+def _unique(items: Iterable[str]) -> list[str]:
+    return list(dict.fromkeys(items))
+
+
+def _roles(name: str, predicted: str, expected: str | None, extra: Sequence[str]) -> tuple[str, ...]:
+    marks = (
+        ("predicted", name == predicted),
+        ("expected", name == expected),
+        ("compared", name in extra and name not in (predicted, expected)),
+    )
+    return tuple(role for role, hit in marks if hit)
+
+
+class _Stopwatch:
+    """Seconds per named part, and the total."""
+
+    def __init__(self) -> None:
+        self.start = self.clock = time.perf_counter()
+        self.parts: dict[str, float] = {}
+
+    def lap(self, name: str) -> None:
+        now = time.perf_counter()
+        self.parts[name] = now - self.clock
+        self.clock = now
+
+    def finish(self) -> dict[str, float]:
+        return {**self.parts, "total": time.perf_counter() - self.start}
+
+
+def relevance_table(
+    rollout: np.ndarray, value_weighted: np.ndarray, grad_rollout: np.ndarray, integrated: np.ndarray
+) -> dict[str, np.ndarray]:
+    """The word-level relevances checked against occlusion, under their stable names."""
+    return {
+        "rollout": rollout,
+        "value_weighted": value_weighted,
+        "grad_rollout": grad_rollout,
+        "integrated_gradients": integrated,
+    }
+
+
+def explain_sentence(
+    lm: LoadedModel,
+    text: str,
+    *,
+    expected: str | None = None,
+    extra_labels: Sequence[str] = (),
+    steps: int = 64,
+    occlusion: OcclusionMode = "remove",
+    baseline: Baseline = "pad",
+    rule: Rule = "gauss-legendre",
+) -> SentenceExplanation:
+    """Explain one sentence's prediction for the predicted and the expected label.
+
+    Parameters
+    ----------
+    lm : LoadedModel
+        A sentence classifier.
+    text : str
+    expected : str, optional
+        The label the sentence should have had.
+    extra_labels : sequence of str
+        More labels to explain (the what-if comparison adds the other sentence's prediction).
+    steps : int, default 64
+        Integrated Gradients quadrature nodes.
+    occlusion : {'remove', 'mask'}, default 'remove'
+        Leave each word out, or replace its pieces by the mask token.
+    baseline : {'pad', 'zero'}, default 'pad'
+        Integrated Gradients baseline (see :func:`inspector.explanation.gradients.baseline_embeddings`).
+    rule : {'gauss-legendre', 'trapezoid'}, default 'gauss-legendre'
+
+    Returns
+    -------
+    SentenceExplanation
+        Word-level relevances per label: gradient-weighted rollout (Chefer et al.
+        2021), Integrated Gradients (Sundararajan et al. 2017), occlusion, and
+        Spearman rho of each relevance against occlusion.
+
+    References
+    ----------
+    Chefer, Gur & Wolf (2021); Sundararajan, Taly & Yan (2017); Abnar & Zuidema
+    (2020); Kobayashi et al. (2020); Jain & Wallace (2019); Wiegreffe & Pinter (2019).
+    """
+    require_classifier(lm)
+    if not text or not text.strip():
+        raise HeadcountError("the sentence is empty")
+    wanted = _unique([*([expected] if expected else []), *extra_labels])
+    for name in wanted:
+        label_index(lm, name)
+    watch = _Stopwatch()
+    analysis = analyze_sentence(lm, text)
+    batch = capture.encode(lm, [text])
+    pred = analysis.prediction
+    names = _unique([pred.label, *wanted])
+    indices = [label_index(lm, name) for name in names]
+    view = make_view(analysis.tokens, analysis.special, analysis.word_ids, words=True, drop_special=True)
+    groups = view.groups
+    rollout_words = merge_to_words(analysis.rollout[CLASSIFICATION_POSITION], groups)
+    vw_rollout = value_weighted_rollout(analysis.layer_value_weighted)
+    vw_words = merge_to_words(vw_rollout[CLASSIFICATION_POSITION], groups)
+    watch.lap("analysis")
+    grads = attention_gradients(lm, batch, indices)
+    watch.lap("attention_gradients")
+    integral, used = integrated_gradients(lm, batch, indices, steps=steps, baseline=baseline, rule=rule)
+    watch.lap("integrated_gradients")
+    occ = occlude_words(lm, batch, groups, occlusion)
+    watch.lap("occlusion")
+
+    evidence = []
+    for k, (name, idx) in enumerate(zip(names, indices)):
+        gr_tokens = grad_weighted_rollout(grads.attention, grads.gradients[k])[CLASSIFICATION_POSITION]
+        ig = IntegratedGradientsResult(
+            attributions=merge_to_words(integral.attributions[k], groups),
+            token_attributions=integral.attributions[k],
+            baseline=used,
+            steps=steps,
+            rule=rule,
+            logit_input=float(integral.output_input[k]),
+            logit_baseline=float(integral.output_baseline[k]),
+        )
+        gr_words = merge_to_words(gr_tokens, groups)
+        drop = occ.drop(idx)
+        table = faithfulness(relevance_table(rollout_words, vw_words, gr_words, ig.attributions), drop)
+        evidence.append(
+            LabelEvidence(
+                label=name,
+                index=idx,
+                roles=_roles(name, pred.label, expected, extra_labels),
+                probability=float(pred.probabilities[name]),
+                logit=float(grads.logits[idx]),
+                grad_rollout=gr_words,
+                grad_rollout_tokens=gr_tokens,
+                integrated_gradients=ig,
+                occlusion=drop,
+                faithfulness=table,
+                hints=faithfulness_hints(table, drop),
+            )
+        )
+    watch.lap("assembly")
+    return SentenceExplanation(
+        model_name=lm.name,
+        text=text,
+        tokens=analysis.tokens,
+        special=analysis.special,
+        word_ids=analysis.word_ids,
+        words=view.labels,
+        word_groups=groups,
+        prediction=pred,
+        expected=expected,
+        attention=analysis.attention,
+        head_metrics=analysis.head_metrics,
+        rollout=rollout_words,
+        value_weighted=vw_words,
+        labels=evidence,
+        occlusion_mode=occ.mode,
+        occlusion_replacement=occ.replacement,
+        timings=watch.finish(),
+    )

@@ -1,0 +1,156 @@
+"""Leave-one-word-out occlusion: how much a label's probability drops without each word."""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+import torch
+
+from inspector.checkpoint.capture import Batch
+from inspector.checkpoint.loader import LoadedModel
+from inspector.errors import HeadcountError
+from inspector.measures.analysis import softmax
+
+OcclusionMode = Literal["remove", "mask"]
+OCCLUSION_MODES: tuple[str, ...] = ("remove", "mask")
+
+OCCLUSION_ROWS_PER_PASS = 256
+"""Occluded copies of a sentence evaluated per forward pass."""
+
+
+@dataclass
+class Occlusion:
+    """Probabilities of the sentence and of each occluded copy."""
+
+    mode: str
+    """``remove`` or ``mask``."""
+    replacement: str | None
+    """The token that replaced the pieces in ``mask`` mode (None when removing)."""
+    probabilities: np.ndarray
+    """[num_labels] the intact sentence."""
+    occluded: np.ndarray
+    """[groups, num_labels] each copy with one group of pieces occluded."""
+
+    def drop(self, label: int) -> np.ndarray:
+        """[groups] ``p(label | sentence) - p(label | sentence without group g)``."""
+        return self.probabilities[label] - self.occluded[:, label]
+
+
+def occluded_rows(
+    input_ids: torch.Tensor,
+    attention_mask: torch.Tensor,
+    extra: dict[str, torch.Tensor],
+    groups: Sequence[Sequence[int]],
+    *,
+    mode: OcclusionMode,
+    replacement_id: int | None = None,
+    pad_id: int = 0,
+) -> dict[str, torch.Tensor]:
+    """Build the batch [1 + groups, n]: the sentence, then one copy per occluded group.
+
+    Parameters
+    ----------
+    input_ids, attention_mask : tensor of shape (n,)
+        One sentence (padding allowed; its mask values are carried along).
+    extra : dict of tensors of shape (n,)
+        Other per-token inputs (token_type_ids ...), occluded alongside.
+    groups : sequence of sequences of int
+        Piece positions forming each word.
+    mode : {'remove', 'mask'}
+        ``remove``: delete the pieces and shift the rest left, padding at the end
+        (mask 0). ``mask``: replace every piece by ``replacement_id``.
+    replacement_id : int, optional
+        Needed for ``mask``.
+    pad_id : int
+        Id written into the freed positions when removing.
+
+    Returns
+    -------
+    dict of tensors of shape (1 + len(groups), n)
+        ``input_ids``, ``attention_mask`` and the extra inputs.
+    """
+    n = input_ids.shape[0]
+    rows = 1 + len(groups)
+    fields = {"input_ids": input_ids, "attention_mask": attention_mask, **extra}
+    fill = {"input_ids": pad_id}
+    out = {k: v.reshape(1, n).repeat(rows, 1) for k, v in fields.items()}
+    if mode == "mask":
+        if replacement_id is None:
+            raise HeadcountError("occlusion by masking needs a mask or unknown token")
+        for r, g in enumerate(groups, start=1):
+            out["input_ids"][r, list(g)] = replacement_id
+        return out
+    if mode != "remove":
+        raise HeadcountError(f"unknown occlusion mode '{mode}' (known: {', '.join(OCCLUSION_MODES)})")
+    for r, g in enumerate(groups, start=1):
+        keep = torch.ones(n, dtype=torch.bool)
+        keep[list(g)] = False
+        m = int(keep.sum())
+        for k, v in fields.items():
+            out[k][r, :m] = v[keep]
+            out[k][r, m:] = fill.get(k, 0)
+    return out
+
+
+def _replacement(lm: LoadedModel) -> tuple[int, str]:
+    tok = lm.tokenizer
+    for attr in ("mask_token", "unk_token"):
+        token = getattr(tok, attr, None)
+        token_id = getattr(tok, f"{attr}_id", None)
+        if token is not None and token_id is not None:
+            return int(token_id), str(token)
+    raise HeadcountError("this tokenizer has neither a mask nor an unknown token; use --occlusion remove")
+
+
+def occlude_words(
+    lm: LoadedModel, batch: Batch, groups: Sequence[Sequence[int]], mode: OcclusionMode = "remove"
+) -> Occlusion:
+    """Leave-one-word-out occlusion of one sentence, all copies batched.
+
+    Parameters
+    ----------
+    lm : LoadedModel
+        A sentence classifier.
+    batch : Batch
+        One sentence.
+    groups : sequence of sequences of int
+        Piece positions of each word (see :func:`inspector.checkpoint.tokens.word_groups`).
+    mode : {'remove', 'mask'}, default 'remove'
+        Remove the word's pieces, or replace each by the mask token (the
+        unknown token when the tokenizer has no mask token).
+
+    Returns
+    -------
+    Occlusion
+        ``drop(k)[g] = p_k(x) - p_k(x without word g)``.
+
+    References
+    ----------
+    Zeiler & Fergus (2014), "Visualizing and Understanding Convolutional
+    Networks" (occlusion sensitivity); for words: Li, Monroe & Jurafsky (2016),
+    "Understanding Neural Networks through Representation Erasure".
+    """
+    if batch.input_ids.shape[0] != 1:
+        raise ValueError("occlusion works on one sentence at a time")
+    replacement_id, replacement = _replacement(lm) if mode == "mask" else (None, None)
+    pad_id = getattr(lm.tokenizer, "pad_token_id", None) or 0
+    rows = occluded_rows(
+        batch.input_ids[0],
+        batch.attention_mask[0],
+        {k: v[0] for k, v in batch.extra.items()},
+        groups,
+        mode=mode,
+        replacement_id=replacement_id,
+        pad_id=pad_id,
+    )
+    total = rows["input_ids"].shape[0]
+    logits = []
+    with torch.no_grad():
+        for start in range(0, total, OCCLUSION_ROWS_PER_PASS):
+            part = {k: v[start : start + OCCLUSION_ROWS_PER_PASS] for k, v in rows.items()}
+            logits.append(lm.model(**part).logits)
+    probs = softmax(torch.cat(logits).numpy())
+    return Occlusion(mode=mode, replacement=replacement, probabilities=probs[0], occluded=probs[1:])

@@ -1,0 +1,7 @@
+"""Figures and files for people who were not in the room.
+
+Atomic file writing (``files``) and the matplotlib figures of the sentence views
+(``sentence``), the corpus run (``corpus``) and an explanation (``explanation``).
+Matplotlib is imported here and nowhere else in the core. May import every
+earlier stage's data types; never the command line, never Qt.
+"""

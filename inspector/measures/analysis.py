@@ -1,0 +1,123 @@
+"""One sentence, fully analysed: prediction, per-head attention and metrics."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from functools import cached_property
+
+import numpy as np
+
+from inspector.checkpoint import capture
+from inspector.checkpoint.loader import LoadedModel
+from inspector.measures import metrics, norms, rollout
+
+
+@dataclass(frozen=True)
+class Prediction:
+    """The classifier's answer for one sentence."""
+
+    label: str
+    index: int
+    probabilities: dict[str, float]
+
+    def top(self, k: int) -> list[tuple[str, float]]:
+        return sorted(self.probabilities.items(), key=lambda kv: -kv[1])[:k]
+
+
+def softmax(logits: np.ndarray) -> np.ndarray:
+    """Numerically stable softmax over the last axis (float64)."""
+    z = np.asarray(logits, dtype=np.float64)
+    z = z - z.max(-1, keepdims=True)
+    e = np.exp(z)
+    return e / e.sum(-1, keepdims=True)
+
+
+def make_prediction(labels: list[str], logits: np.ndarray) -> Prediction:
+    probs = softmax(logits)
+    idx = int(np.argmax(probs))
+    return Prediction(labels[idx], idx, {lab: float(p) for lab, p in zip(labels, probs)})
+
+
+@dataclass
+class SentenceAnalysis:
+    """Everything the views need about one sentence (padding already removed)."""
+
+    model_name: str
+    text: str
+    tokens: list[str]
+    special: np.ndarray
+    word_ids: list[int | None]
+    attention: np.ndarray
+    """[layers, heads, n, n] float32."""
+    values: np.ndarray
+    """[layers, n, heads, d] value vectors."""
+    out_weight: np.ndarray
+    """[layers, hidden, heads*d]."""
+    out_bias: np.ndarray
+    prediction: Prediction | None
+    head_metrics: metrics.HeadMetrics = field(init=False)
+
+    def __post_init__(self) -> None:
+        self.head_metrics = metrics.head_metrics(self.attention, self.special)
+
+    @property
+    def num_layers(self) -> int:
+        return self.attention.shape[0]
+
+    @property
+    def num_heads(self) -> int:
+        return self.attention.shape[1]
+
+    @cached_property
+    def rollout(self) -> np.ndarray:
+        """Attention rollout [n, n] (Abnar & Zuidema 2020)."""
+        return rollout.attention_rollout(self.attention)
+
+    @cached_property
+    def value_gram(self) -> np.ndarray:
+        """Inner products of the heads' transformed values [layers, n, heads, heads]."""
+        return norms.value_gram(self.values, self.out_weight)
+
+    @cached_property
+    def value_weighted(self) -> np.ndarray:
+        """Per-head value-weighted attention [layers, heads, n, n] (Kobayashi et al. 2020)."""
+        return norms.value_weighted_attention(
+            self.attention, self.values, self.out_weight, gram=self.value_gram
+        )
+
+    @cached_property
+    def layer_value_weighted(self) -> np.ndarray:
+        """Layer-level value-weighted attention [layers, n, n] (Kobayashi et al. 2020)."""
+        return norms.layer_value_weighted(self.attention, self.values, self.out_weight, gram=self.value_gram)
+
+    def flow(self, *, queries: list[int] | None = None) -> np.ndarray:
+        """Attention flow [n, n]; raises ValueError for inputs too long to solve quickly."""
+        return rollout.attention_flow(self.attention, queries=queries)
+
+    def heads_table(self) -> list[dict[str, float | int]]:
+        """One dict per head: layer, head and every metric (stable JSON names)."""
+        table = self.head_metrics.as_dict()
+        return [
+            {"layer": l, "head": h, **{k: float(v[l, h]) for k, v in table.items()}}
+            for l in range(self.num_layers)
+            for h in range(self.num_heads)
+        ]
+
+
+def analyze_sentence(lm: LoadedModel, text: str) -> SentenceAnalysis:
+    """Run one sentence through the model and capture everything about it."""
+    cap = capture.run(lm, [text], values=True)
+    idx = cap.batch.real_index[0]
+    prediction = make_prediction(lm.labels, cap.logits[0]) if lm.has_prediction else None
+    return SentenceAnalysis(
+        model_name=lm.name,
+        text=text,
+        tokens=cap.batch.tokens[0],
+        special=cap.batch.special[0],
+        word_ids=cap.batch.word_ids[0],
+        attention=cap.sentence(0),
+        values=cap.values[0][:, idx],
+        out_weight=cap.out_weight,
+        out_bias=cap.out_bias,
+        prediction=prediction,
+    )

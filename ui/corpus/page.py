@@ -1,0 +1,710 @@
+"""The corpus page: a whole labelled evaluation set at once.
+
+Top: the data file (CSV or JSON Lines), its field names and what to do with bad
+rows, the run's options, Run / Cancel with a progress bar naming the phase.
+Then what was read (bad rows by line number, labels the model does not know).
+Two tabs of results: *Evaluation* (accuracy, macro-F1, per-intent scores, the
+confusion matrix, the misfires most confident first: a click opens one in the
+sentence view with its expected label, its Explain button on the Explain page)
+and *Heads* (importance per head, head-by-head similarity with the
+near-duplicate groups, and the pruning curve with its caution and the chosen set
+of heads to remove).
+
+The run goes through :func:`ui.corpus.state.compute_corpus` on the window's
+:class:`ui.widgets.worker.JobRunner` ("corpus" channel) holding ``MODEL_LOCK``; Cancel
+sets an event that :func:`inspector.corpus.run.run_corpus` polls before every batch,
+so the run stops within one batch and the results shown before stay.
+"""
+
+from __future__ import annotations
+
+import html
+import threading
+from pathlib import Path
+
+from PySide6.QtCore import QObject, QSettings, Qt, Signal
+from PySide6.QtGui import QKeySequence, QShortcut
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QCheckBox,
+    QComboBox,
+    QDoubleSpinBox,
+    QFileDialog,
+    QHBoxLayout,
+    QHeaderView,
+    QLabel,
+    QLineEdit,
+    QProgressBar,
+    QPushButton,
+    QSpinBox,
+    QSplitter,
+    QTableWidget,
+    QTableWidgetItem,
+    QTabWidget,
+    QVBoxLayout,
+    QWidget,
+)
+
+from inspector.checkpoint.loader import LoadedModel
+from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
+from inspector.corpus.report import write_report
+from inspector.corpus.run import PHASES, CorpusCancelled, CorpusReport
+from inspector.corpus.settings import CorpusSettings
+from inspector.figures.files import save_json
+from ui.corpus.pruning_plot import PruningPlot
+from ui.corpus.state import (
+    CorpusRequest,
+    compute_corpus,
+    confusion_shares,
+    data_report_html,
+    default_data_file,
+    groups_html,
+    head_names,
+    intent_rows,
+    mask_text,
+    summary_html,
+)
+from ui.widgets.legend import ColourKey
+from ui.widgets.matrix_map import MatrixMap
+from ui.widgets.panel import Panel, buddy_label, column, control_grid
+from ui.widgets.worker import MODEL_LOCK, JobRunner
+
+CHANNEL = "corpus"
+CANCELLED = "cancelled"
+"""What the job returns when Cancel stopped it."""
+BAD_ROW_CHOICES = {"skip": "skip them and list them", "fail": "stop: the file must be clean"}
+MISFIRE_HEADER = ("Line", "Utterance", "Expected", "Predicted", "Confidence", "")
+EXPLAIN_COLUMN = 5
+
+
+class _Progress(QObject):
+    """Carries progress from the worker thread to the page (queued signals)."""
+
+    progress = Signal(int, int, int)
+    """run number, batches done, batches in all."""
+    phase = Signal(int, str)
+
+
+def _table(parent: QWidget, header: tuple[str, ...], name: str) -> QTableWidget:
+    table = QTableWidget(0, len(header), parent)
+    table.setHorizontalHeaderLabels(list(header))
+    table.setAccessibleName(name)
+    table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+    table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+    table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+    table.verticalHeader().setVisible(False)
+    table.setAlternatingRowColors(True)
+    return table
+
+
+def _cell(text: str, align_right: bool = False, tip: str = "") -> QTableWidgetItem:
+    item = QTableWidgetItem(text)
+    if align_right:
+        item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+    if tip:
+        item.setToolTip(tip)
+    return item
+
+
+def _two_over_one(
+    tab: QWidget, panels: tuple[QWidget, QWidget, QWidget], widths: list[int], heights: list[int]
+):
+    """Lay out a tab: two panels side by side above a third, in splitters that never collapse a panel."""
+    top = QSplitter(Qt.Orientation.Horizontal, tab)
+    top.addWidget(panels[0])
+    top.addWidget(panels[1])
+    top.setSizes(widths)
+    split = QSplitter(Qt.Orientation.Vertical, tab)
+    split.addWidget(top)
+    split.addWidget(panels[2])
+    split.setSizes(heights)
+    for s in (top, split):
+        s.setChildrenCollapsible(False)
+    column(tab, [(split, 1)], margins=0, spacing=0)
+    return tab
+
+
+class CorpusPage(QWidget):
+    """Run the corpus analysis on an evaluation set and show what it found."""
+
+    open_sentence = Signal(str, object)
+    """text, expected label: show it in the sentence view."""
+    explain = Signal(str, object)
+    """text, expected label: show it on the Explain page."""
+    status = Signal(str)
+    error = Signal(str)
+    finished = Signal(str)
+    """'done', 'cancelled' or 'failed' when a run ends."""
+
+    def __init__(self, runner: JobRunner, settings: QSettings, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.runner, self.settings = runner, settings
+        self.lm: LoadedModel | None = None
+        self.report: CorpusReport | None = None
+        self._default_file = ""
+        self._stop = threading.Event()
+        self._run = 0
+        self._bridge = _Progress(self)
+        self._bridge.progress.connect(self._progress)
+        self._bridge.phase.connect(self._phase)
+
+        self.tabs = QTabWidget(self)
+        self.tabs.addTab(self._evaluation_tab(), "&Evaluation")
+        self.tabs.addTab(self._heads_tab(), "&Heads and pruning")
+        self.data_note = QLabel("", self)
+        self.data_note.setWordWrap(True)
+        self.data_note.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.data_note.setAccessibleName("What was read")
+        self.data_note.setContentsMargins(8, 0, 8, 0)
+        column(self, [self._request_box(), self.data_note, (self.tabs, 1)], margins=(6, 4, 6, 4), spacing=6)
+        runner.busy_changed.connect(self._busy_changed)
+        export = QShortcut(QKeySequence("Ctrl+Shift+R"), self)
+        export.setContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
+        export.activated.connect(self.export_current)
+        self._set_running(False)
+        self.clear("Open a sentence classifier, choose its evaluation set and press Run")
+
+    # -- building ----------------------------------------------------------------------------------
+    def _request_box(self) -> QWidget:
+        box = QWidget(self)
+        self.path_edit = QLineEdit(box)
+        self.path_edit.setAccessibleName("Data file")
+        self.path_edit.setPlaceholderText("A labelled evaluation set: .csv with a header row, or .jsonl")
+        self.path_edit.setClearButtonEnabled(True)
+        self.path_edit.returnPressed.connect(self.run)
+        browse = QPushButton("&Browse\u2026", box)
+        browse.clicked.connect(self.choose_file)
+        self.text_field = QLineEdit("text", box)
+        self.text_field.setAccessibleName("Text field")
+        self.label_field = QLineEdit("label", box)
+        self.label_field.setAccessibleName("Label field")
+        for edit in (self.text_field, self.label_field):
+            edit.setMaximumWidth(110)
+            edit.setToolTip("Column (CSV) or key (JSONL) name")
+        self.bad_rows_box = QComboBox(box)
+        self.bad_rows_box.setAccessibleName("Bad rows")
+        for key, text in BAD_ROW_CHOICES.items():
+            self.bad_rows_box.addItem(text, key)
+        self.importance_check = QCheckBox("Head &importance", box)
+        self.importance_check.setChecked(True)
+        self.importance_check.setToolTip(
+            "Gradient pass: how much the loss reacts to each head (Michel et al. 2019)"
+        )
+        self.importance_check.toggled.connect(self._importance_toggled)
+        self.order_checks: dict[str, QCheckBox] = {}
+        defaults = CorpusSettings()
+        for name in PRUNING_ORDERS:
+            check = QCheckBox(name, box)
+            check.setChecked(name in defaults.orders)
+            check.setToolTip(f"Simulate removing heads in the \u2018{name}\u2019 order")
+            self.order_checks[name] = check
+        self.tolerance = QDoubleSpinBox(box)
+        self.tolerance.setRange(0.0, 100.0)
+        self.tolerance.setDecimals(1)
+        self.tolerance.setSingleStep(0.5)
+        self.tolerance.setValue(100 * defaults.max_drop)
+        self.tolerance.setSuffix(" pts")
+        self.tolerance.setAccessibleName("Accuracy tolerance")
+        self.tolerance.setToolTip(
+            "The exported set removes the most heads whose removal never cost more accuracy"
+        )
+        self.every = QSpinBox(box)
+        self.every.setRange(1, 64)
+        self.every.setValue(defaults.prune_every)
+        self.every.setSuffix(" head(s)")
+        self.every.setAccessibleName("Measure accuracy every")
+        self.run_button = QPushButton("&Run", box)
+        self.run_button.setDefault(True)
+        self.run_button.clicked.connect(self.run)
+        self.cancel_button = QPushButton("&Cancel", box)
+        self.cancel_button.clicked.connect(self.cancel)
+        self.progress = QProgressBar(box)
+        self.progress.setAccessibleName("Corpus progress")
+        self.progress.setTextVisible(True)
+        self.phase_label = QLabel("", box)
+        self.export_button = QPushButton("E&xport report\u2026", box)
+        self.export_button.setToolTip(
+            "Write summary.json, heads.csv, similar_pairs.csv, pruning.csv, prune_mask.json and the figures "
+            "into a folder \u2014 Ctrl+Shift+R"
+        )
+        self.export_button.clicked.connect(self.export_current)
+
+        grid = control_grid(box)
+
+        def buddy(text: str, widget: QWidget) -> QLabel:
+            return buddy_label(text, widget, box)
+
+        first = QHBoxLayout()
+        first.setSpacing(8)
+        for item in (
+            buddy("&Data file:", self.path_edit),
+            (self.path_edit, 1),
+            browse,
+            buddy("&Text field:", self.text_field),
+            self.text_field,
+            buddy("&Label field:", self.label_field),
+            self.label_field,
+            buddy("Bad ro&ws:", self.bad_rows_box),
+            self.bad_rows_box,
+        ):
+            widget, stretch = item if isinstance(item, tuple) else (item, 0)
+            first.addWidget(widget, stretch)
+        second = QHBoxLayout()
+        second.setSpacing(8)
+        second.addWidget(self.importance_check)
+        second.addSpacing(10)
+        second.addWidget(QLabel("Pruning orders:", box))
+        for check in self.order_checks.values():
+            second.addWidget(check)
+        second.addSpacing(10)
+        second.addWidget(buddy("T&olerance:", self.tolerance))
+        second.addWidget(self.tolerance)
+        second.addWidget(buddy("Measure e&very:", self.every))
+        second.addWidget(self.every)
+        second.addStretch(1)
+        second.addWidget(self.export_button)
+        third = QHBoxLayout()
+        third.setSpacing(8)
+        third.addWidget(self.run_button)
+        third.addWidget(self.cancel_button)
+        third.addWidget(self.progress, 2)
+        third.addWidget(self.phase_label, 3)
+        grid.addLayout(first, 0, 0)
+        grid.addLayout(second, 1, 0)
+        grid.addLayout(third, 2, 0)
+        return box
+
+    def _evaluation_tab(self) -> QWidget:
+        tab = QWidget(self)
+        self.summary = QLabel("", tab)
+        self.summary.setAccessibleName("Summary")
+        self.summary.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.intents = _table(tab, ("Intent", "Precision", "Recall", "F1", "Support"), "Per-intent scores")
+        self.intents.horizontalHeader().setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
+        intent_body = QWidget(tab)
+        column(intent_body, [self.summary, (self.intents, 1)], margins=(8, 0, 8, 4), spacing=6)
+        intent_panel = Panel("Scores", intent_body, tab)
+        self.confusion = MatrixMap("Confusion matrix", tab)
+        self.confusion_panel = Panel("Confusion matrix", self.confusion, tab)
+        self.confusion_panel.set_subtitle("rows: expected \u00b7 columns: predicted \u00b7 framed: correct")
+        self._key(self.confusion_panel, "Share of the expected label's utterances:", "0%", "100%")
+
+        self.misfires = _table(tab, MISFIRE_HEADER, "Misfires")
+        header = self.misfires.horizontalHeader()
+        header.setSectionResizeMode(1, QHeaderView.ResizeMode.Stretch)
+        for col in (0, 2, 3, 4, EXPLAIN_COLUMN):
+            header.setSectionResizeMode(col, QHeaderView.ResizeMode.ResizeToContents)
+        self.misfires.cellClicked.connect(self._misfire_clicked)
+        for key in ("Return", "Enter"):
+            enter = QShortcut(QKeySequence(key), self.misfires)
+            enter.setContext(Qt.ShortcutContext.WidgetShortcut)
+            enter.activated.connect(lambda: self.open_misfire(self.misfires.currentRow()))
+            explain = QShortcut(QKeySequence(f"Ctrl+{key}"), self.misfires)
+            explain.setContext(Qt.ShortcutContext.WidgetShortcut)
+            explain.activated.connect(lambda: self.explain_misfire(self.misfires.currentRow()))
+        self.misfire_panel = Panel("Misfires, most confident first", self.misfires, tab)
+        self.misfire_panel.set_subtitle(
+            "click (or Enter) opens one in the sentence view \u00b7 Explain (or Ctrl+Enter) on the Explain page"
+        )
+        return _two_over_one(
+            tab, (intent_panel, self.confusion_panel, self.misfire_panel), [520, 700], [520, 240]
+        )
+
+    def _heads_tab(self) -> QWidget:
+        tab = QWidget(self)
+        self.importance_map = MatrixMap("Head importance", tab)
+        importance_panel = Panel("Head importance", self.importance_map, tab)
+        importance_panel.set_subtitle(
+            "layers down, heads across \u00b7 |d loss / d gate|, l2-normalised per layer"
+        )
+        self.importance_panel = importance_panel
+        self._key(importance_panel, "Importance:", "0", "largest head")
+        self.similarity = MatrixMap("Head similarity", tab)
+        self.groups = QLabel("", tab)
+        self.groups.setTextFormat(Qt.TextFormat.RichText)
+        self.groups.setWordWrap(True)
+        self.groups.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
+        self.groups.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.groups.setMinimumWidth(170)
+        sim_body = QWidget(tab)
+        row = QHBoxLayout(sim_body)
+        row.setContentsMargins(4, 0, 8, 4)
+        row.addWidget(self.similarity, 3)
+        row.addWidget(self.groups, 1)
+        self.similarity_panel = Panel("Head-by-head similarity", sim_body, tab)
+        self.similarity_panel.set_subtitle(
+            "1 \u2212 mean Jensen-Shannon divergence (bits) \u00b7 framed: near-duplicates"
+        )
+
+        self._key(self.similarity_panel, "Similarity:", "least similar pair", "identical")
+
+        self.plot = PruningPlot(tab)
+        self.caution = QLabel(f"<b>Read with care:</b> {html.escape(CAUTION)}", tab)
+        self.caution.setWordWrap(True)
+        self.caution.setAccessibleName("Pruning caution")
+        self.mask_label = QLabel("", tab)
+        self.mask_label.setWordWrap(True)
+        self.mask_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.save_mask_button = QPushButton("Save prune &mask\u2026", tab)
+        self.save_mask_button.setToolTip(
+            'Write the chosen set of heads to remove as JSON: {"layer": [head, ...]}'
+        )
+        self.save_mask_button.clicked.connect(self.choose_mask_file)
+        plot_body = QWidget(tab)
+        side = QVBoxLayout()
+        side.setSpacing(8)
+        side.addWidget(self.caution)
+        side.addWidget(self.mask_label)
+        side.addWidget(self.save_mask_button, 0, Qt.AlignmentFlag.AlignLeft)
+        side.addStretch(1)
+        prow = QHBoxLayout(plot_body)
+        prow.setContentsMargins(8, 0, 8, 4)
+        prow.addWidget(self.plot, 3)
+        prow.addLayout(side, 2)
+        self.pruning_panel = Panel("Pruning: accuracy against heads switched off", plot_body, tab)
+        self.pruning_panel.set_subtitle("no retraining")
+
+        return _two_over_one(
+            tab, (importance_panel, self.similarity_panel, self.pruning_panel), [460, 760], [400, 320]
+        )
+
+    def _key(self, panel: Panel, caption: str, low: str, high: str) -> ColourKey:
+        key = ColourKey(panel)
+        key.set_text(caption, low, high)
+        panel.footer.addWidget(key)
+        return key
+
+    # -- model and request -------------------------------------------------------------------------
+    def set_model(self, lm: LoadedModel) -> None:
+        """A new model: stop a running analysis, forget the old results, offer the sample set if it fits."""
+        self.stop()
+        self.runner.cancel(CHANNEL)
+        self.lm = lm
+        suggested = default_data_file(lm)
+        if not self.path_edit.text().strip() or self.path_edit.text() == self._default_file:
+            self.path_edit.setText(suggested)
+        self._default_file = suggested
+        self.data_note.setText("")
+        if not lm.has_prediction or not lm.labels:
+            self.clear(
+                f"{lm.name} is a {lm.task}: the corpus analysis needs a sentence classifier with labels"
+            )
+        else:
+            self.clear(f"{lm.name}: choose its evaluation set and press Run")
+        self._set_running(False)
+
+    def request(self) -> CorpusRequest:
+        """The run the controls describe now."""
+        orders = tuple(name for name, check in self.order_checks.items() if check.isChecked())
+        importance = self.importance_check.isChecked()
+        settings = CorpusSettings(
+            importance=importance,
+            orders=orders,
+            max_drop=self.tolerance.value() / 100,
+            prune_every=self.every.value(),
+        )
+        return CorpusRequest(
+            path=self.path_edit.text().strip(),
+            text_field=self.text_field.text().strip() or "text",
+            label_field=self.label_field.text().strip() or "label",
+            on_bad_row=self.bad_rows_box.currentData(),
+            settings=settings,
+        )
+
+    def _importance_toggled(self, on: bool) -> None:
+        check = self.order_checks["importance"]
+        check.setEnabled(on)
+        if not on:
+            check.setChecked(False)
+
+    def choose_file(self) -> None:
+        start = self.path_edit.text() or str(self.settings.value("corpus/data_folder", str(Path.home())))
+        path, _ = QFileDialog.getOpenFileName(
+            self,
+            "Choose a labelled evaluation set",
+            start,
+            "Labelled sets (*.csv *.jsonl *.ndjson);;All files (*)",
+        )
+        if path:
+            self.settings.setValue("corpus/data_folder", str(Path(path).parent))
+            self.path_edit.setText(path)
+
+    # -- running -----------------------------------------------------------------------------------
+    def is_running(self) -> bool:
+        return self.runner.is_busy(CHANNEL)
+
+    def run(self) -> None:
+        """Start a corpus run in the background (ignored while one runs)."""
+        lm = self.lm
+        if self.is_running():
+            return
+        if lm is None:
+            self.error.emit("Open a model first (File \u203a Open model folder, Ctrl+O)")
+            return
+        request = self.request()
+        if not request.path:
+            self.error.emit(
+                "Choose a data file for the corpus analysis (a .csv or .jsonl with text and label)"
+            )
+            return
+        self._stop = threading.Event()
+        self._run += 1
+        run, stop, bridge = self._run, self._stop, self._bridge
+
+        def job() -> object:
+            with MODEL_LOCK:
+                try:
+                    return compute_corpus(
+                        lm,
+                        request,
+                        on_progress=lambda done, total: bridge.progress.emit(run, done, total),
+                        should_stop=stop.is_set,
+                        on_phase=lambda name: bridge.phase.emit(run, name),
+                    )
+                except CorpusCancelled:
+                    return CANCELLED
+
+        self.progress.setRange(0, 0)
+        self.phase_label.setText(f"Reading {Path(request.path).name}\u2026")
+        self.runner.submit(CHANNEL, job, lambda result: self._done(lm, result), self._failed)
+        self._set_running(True)
+
+    def cancel(self) -> None:
+        """Ask the running analysis to stop before its next batch; the results shown stay."""
+        if self.is_running():
+            self._stop.set()
+            self.cancel_button.setEnabled(False)
+            self.phase_label.setText("Stopping after the current batch\u2026")
+
+    def stop(self) -> None:
+        """Stop a running analysis (model change, window closing)."""
+        self._stop.set()
+
+    def _progress(self, run: int, done: int, total: int) -> None:
+        if run == self._run and not self._stop.is_set():
+            self.progress.setRange(0, max(total, 1))
+            self.progress.setValue(done)
+            self.progress.setFormat("%v of %m batches")
+
+    def _phase(self, run: int, name: str) -> None:
+        if run == self._run and not self._stop.is_set():
+            self.phase_label.setText(PHASES.get(name, name))
+
+    def _done(self, lm: LoadedModel, result: object) -> None:
+        if lm is not self.lm:
+            return
+        if result == CANCELLED:
+            kept = "the results below are from the previous run" if self.report else "nothing was shown"
+            self.phase_label.setText(f"Cancelled \u2014 {kept}")
+            self.status.emit("Corpus run cancelled")
+            self.finished.emit("cancelled")
+            return
+        assert isinstance(result, CorpusReport)
+        self.show_report(result)
+        self.phase_label.setText(f"Done: {len(result.data)} utterances")
+        self.status.emit(f"Corpus analysis of {Path(result.data.path).name} done")
+        self.finished.emit("done")
+
+    def _failed(self, text: str) -> None:
+        self.phase_label.setText("Failed \u2014 see the message above")
+        self.data_note.setText(f"<b>Could not run:</b> {html.escape(text)}")
+        self.error.emit(f"Corpus analysis: {text}")
+        self.finished.emit("failed")
+
+    def _busy_changed(self, channel: str, busy: bool) -> None:
+        if channel == CHANNEL:
+            self._set_running(busy)
+
+    def _set_running(self, running: bool) -> None:
+        usable = self.lm is not None and self.lm.has_prediction and bool(self.lm.labels)
+        self.run_button.setEnabled(usable and not running)
+        self.cancel_button.setEnabled(running and not self._stop.is_set())
+        self.export_button.setEnabled(self.report is not None)
+        self.save_mask_button.setEnabled(self.report is not None and self.report.pruning is not None)
+        if not running:
+            self.progress.setRange(0, 1)
+            self.progress.setValue(1 if self.report is not None else 0)
+            self.progress.setFormat("" if self.report is None else "done")
+
+    # -- showing -----------------------------------------------------------------------------------
+    def clear(self, note: str) -> None:
+        self.report = None
+        self.summary.setText(note)
+        self.intents.setRowCount(0)
+        self.misfires.setRowCount(0)
+        for view in (self.confusion, self.importance_map, self.similarity):
+            view.set_data(None, [], [], note=note)
+        self.groups.setText("")
+        self.plot.set_result(None, 1, note)
+        self.mask_label.setText("")
+        self._set_running(self.is_running())
+
+    def show_report(self, report: CorpusReport) -> None:
+        """Fill every view from ``report``."""
+        self.report = report
+        self.data_note.setText(data_report_html(report.data))
+        self.summary.setText(summary_html(report))
+        self._fill_intents(report)
+        self._fill_confusion(report)
+        self._fill_misfires(report)
+        self._fill_heads(report)
+        self._set_running(self.is_running())
+
+    def _fill_intents(self, report: CorpusReport) -> None:
+        rows = intent_rows(report)
+        self.intents.setRowCount(len(rows))
+        for r, cells in enumerate(rows):
+            for c, text in enumerate(cells):
+                self.intents.setItem(r, c, _cell(text, c > 0))
+        self.intents.resizeColumnsToContents()
+
+    def _fill_confusion(self, report: CorpusReport) -> None:
+        ev = report.evaluation
+        counts = ev.confusion
+        shares = confusion_shares(counts)
+        texts = [[str(int(v)) if v else "" for v in row] for row in counts]
+
+        def describe(r: int, c: int) -> str:
+            what = "correct" if r == c else "misfire"
+            return (
+                f"expected {ev.labels[r]}, predicted {ev.labels[c]}: {int(counts[r, c])} utterance(s) "
+                f"({100 * shares[r, c]:.1f}% of {int(counts[r].sum())} {ev.labels[r]}) \u2014 {what}"
+            )
+
+        n = len(ev.labels)
+        self.confusion.set_data(
+            shares,
+            ev.labels,
+            ev.labels,
+            texts=texts,
+            vmax=1.0,
+            marked={(i, i) for i in range(n)},
+            describe=describe,
+        )
+
+    def _fill_misfires(self, report: CorpusReport) -> None:
+        misfires = report.evaluation.misfires
+        self.misfires.setRowCount(len(misfires))
+        for r, m in enumerate(misfires):
+            cells = (
+                _cell(str(m.row), True, "Line in the data file"),
+                _cell(m.text, tip=m.text),
+                _cell(m.expected),
+                _cell(m.predicted),
+                _cell(f"{m.confidence:.3f}", True, f"expected label got {m.expected_probability:.3f}"),
+            )
+            for c, item in enumerate(cells):
+                self.misfires.setItem(r, c, item)
+            button = QPushButton("Explain", self.misfires)
+            button.setToolTip("Open this utterance on the Explain page with its expected label")
+            button.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+            button.clicked.connect(lambda _c=False, row=r: self.explain_misfire(row))
+            self.misfires.setCellWidget(r, EXPLAIN_COLUMN, button)
+        self.misfire_panel.set_subtitle(
+            f"{len(misfires)} \u00b7 click (or Enter) opens one in the sentence view \u00b7 "
+            "Explain (or Ctrl+Enter) on the Explain page"
+        )
+
+    def _fill_heads(self, report: CorpusReport) -> None:
+        layers, heads = report.num_layers, report.num_heads
+        imp = report.importance
+        if imp is None:
+            self.importance_map.set_data(None, [], [], note="Head importance was not computed (switched off)")
+        else:
+            values = imp.normalized
+            self.importance_map.set_data(
+                values,
+                [f"L{l}" for l in range(layers)],
+                [f"H{h}" for h in range(heads)],
+                texts=[[f"{v:.2f}" for v in row] for row in values],
+                describe=lambda l, h: (
+                    f"layer {l}, head {h}: importance {values[l, h]:.4f} "
+                    f"(raw {imp.raw[l, h]:.4g}, normalised within the layer)"
+                ),
+            )
+        red = report.redundancy
+        names = head_names(layers, heads)
+        grouped = {l * heads + h for g in red.groups for l, h in g}
+        members = {
+            (i, j)
+            for g in red.groups
+            for i in [l * heads + h for l, h in g]
+            for j in [l * heads + h for l, h in g]
+        }
+        self.similarity.set_data(
+            red.similarity,
+            names,
+            names,
+            vmin=max(0.0, float(red.similarity.min())),
+            vmax=1.0,
+            block=heads,
+            marked={(i, j) for i, j in members if i != j and i in grouped},
+            describe=lambda i, j: (
+                f"{names[i]} vs {names[j]}: mean JS divergence {red.js[i, j]:.4f} bits (similarity {1 - red.js[i, j]:.4f})"
+            ),
+        )
+        self.groups.setText(groups_html(report))
+        self.plot.set_result(report.pruning, layers * heads, "No pruning order was chosen for this run")
+        self.mask_label.setText(html.escape(mask_text(report)))
+
+    # -- misfires ----------------------------------------------------------------------------------
+    def _misfire_clicked(self, row: int, column_: int) -> None:
+        if column_ != EXPLAIN_COLUMN:
+            self.open_misfire(row)
+
+    def open_misfire(self, row: int) -> None:
+        """Show misfire ``row`` in the sentence view with its expected label."""
+        if self.report is not None and 0 <= row < len(self.report.evaluation.misfires):
+            m = self.report.evaluation.misfires[row]
+            self.open_sentence.emit(m.text, m.expected)
+
+    def explain_misfire(self, row: int) -> None:
+        """Show misfire ``row`` on the Explain page with its expected label."""
+        if self.report is not None and 0 <= row < len(self.report.evaluation.misfires):
+            m = self.report.evaluation.misfires[row]
+            self.explain.emit(m.text, m.expected)
+
+    # -- export ------------------------------------------------------------------------------------
+    def export_current(self) -> None:
+        """Ask for a folder, then write the whole report there (the CLI's files) in the background."""
+        if self.report is None:
+            self.error.emit("Nothing to export yet: run the corpus analysis first")
+            return
+        start = str(self.settings.value("corpus/report_folder", str(Path.home())))
+        folder = QFileDialog.getExistingDirectory(self, "Write the corpus report into a folder", start)
+        if folder:
+            self.settings.setValue("corpus/report_folder", folder)
+            self.export_report(Path(folder))
+
+    def export_report(self, folder: Path) -> int:
+        """Write the report into ``folder`` on the export channel; returns the job number."""
+        report = self.report
+        if report is None:
+            raise ValueError("nothing to export: no corpus run yet")
+
+        def done(written: object) -> None:
+            count = sum(len(paths) for paths in written.values())
+            self.status.emit(f"Wrote {count} corpus report files in {folder}")
+
+        return self.runner.submit(
+            "export",
+            lambda: write_report(report, folder),
+            done,
+            lambda text: self.error.emit(f"Could not write the corpus report: {text}"),
+            latest_only=False,
+        )
+
+    def choose_mask_file(self) -> None:
+        if self.report is None or self.report.pruning is None:
+            self.error.emit("No set of heads to save: run the corpus analysis with a pruning order first")
+            return
+        start = Path(str(self.settings.value("corpus/report_folder", str(Path.home())))) / "prune_mask.json"
+        path, _ = QFileDialog.getSaveFileName(self, "Save the heads to remove", str(start), "JSON (*.json)")
+        if path:
+            self.save_mask(Path(path))
+
+    def save_mask(self, path: Path) -> Path:
+        """Write the chosen heads to ``path`` atomically as ``{"layer": [head, ...]}``."""
+        written = save_json(path, self.report.pruning.mask)
+        self.status.emit(f"Saved the prune mask ({len(self.report.pruning.removed)} heads) to {path}")
+        return written

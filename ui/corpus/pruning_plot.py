@@ -1,0 +1,196 @@
+"""The pruning curve: accuracy against the fraction of heads switched off, one line per removal order.
+
+Lines differ by dash pattern and marker shape as well as by shade, so they read
+apart without colour (and in greyscale print). The chosen set of heads to
+remove is marked with a vertical line. Hover shows the nearest measured point.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from PySide6.QtCore import QPointF, QRectF, QSize, Qt
+from PySide6.QtGui import QColor, QPainterPath, QPalette, QPen
+from PySide6.QtWidgets import QWidget
+
+from inspector.corpus.pruning import PruningResult
+from ui.widgets.colormap import accent, dim_text
+from ui.widgets.hover_view import HoverView
+
+STYLES: tuple[tuple[Qt.PenStyle, str, float], ...] = (
+    (Qt.PenStyle.SolidLine, "circle", 1.0),
+    (Qt.PenStyle.DashLine, "square", 0.62),
+    (Qt.PenStyle.DotLine, "triangle", 0.42),
+)
+"""(dash, marker, text-colour alpha) per order, in the order the curves come."""
+PAD_LEFT, PAD_BOTTOM, PAD_TOP, PAD_RIGHT = 46, 34, 26, 12
+
+
+def draw_marker(p, centre: QPointF, kind: str, size: float) -> None:
+    """A small filled circle, square or triangle."""
+    if kind == "circle":
+        p.drawEllipse(centre, size, size)
+    elif kind == "square":
+        p.drawRect(QRectF(centre.x() - size, centre.y() - size, 2 * size, 2 * size))
+    else:
+        path = QPainterPath(QPointF(centre.x(), centre.y() - size * 1.2))
+        path.lineTo(centre.x() + size * 1.1, centre.y() + size * 0.9)
+        path.lineTo(centre.x() - size * 1.1, centre.y() + size * 0.9)
+        path.closeSubpath()
+        p.drawPath(path)
+
+
+class PruningPlot(HoverView):
+    """Accuracy after removing growing prefixes of each order (no retraining)."""
+
+    def __init__(self, parent: QWidget | None = None) -> None:
+        super().__init__("Pruning curve", parent)
+        self.result: PruningResult | None = None
+        self.total = 1
+        self.top = 1.0
+        """Accuracy at the top of the plot: the next tenth above the best measured point (at most 100%)."""
+        self.note = "No pruning simulated yet"
+
+    def set_result(self, result: PruningResult | None, total_heads: int, note: str = "") -> None:
+        self.result, self.total = result, max(total_heads, 1)
+        self.note = note or "No pruning simulated yet"
+        best = max((max(c.accuracy) for c in result.curves), default=1.0) if result else 1.0
+        self.top = min(1.0, max(0.1, np.ceil(best * 10 + 1e-9) / 10))
+        self._hover = None
+        self.update()
+
+    def sizeHint(self) -> QSize:
+        return QSize(460, 300)
+
+    def minimumSizeHint(self) -> QSize:
+        return QSize(240, 180)
+
+    # -- geometry --------------------------------------------------------------------------------
+    def plot_rect(self) -> QRectF:
+        return QRectF(
+            PAD_LEFT, PAD_TOP, self.width() - PAD_LEFT - PAD_RIGHT, self.height() - PAD_TOP - PAD_BOTTOM
+        )
+
+    def point(self, fraction: float, accuracy: float) -> QPointF:
+        r = self.plot_rect()
+        return QPointF(r.left() + fraction * r.width(), r.bottom() - accuracy / self.top * r.height())
+
+    def points(self) -> list[tuple[int, int, QPointF]]:
+        """(curve index, step index, position) of every measured point."""
+        out = []
+        for i, curve in enumerate(self.result.curves if self.result else []):
+            for k, (f, a) in enumerate(zip(curve.fractions, curve.accuracy)):
+                out.append((i, k, self.point(f, a)))
+        return out
+
+    def hit_at(self, x: float, y: float) -> tuple[int, int] | None:
+        best, found = 12.0**2, None
+        for i, k, pt in self.points():
+            d = (pt.x() - x) ** 2 + (pt.y() - y) ** 2
+            if d <= best:
+                best, found = d, (i, k)
+        return found
+
+    def hover_text(self, hit: tuple[int, int]) -> str:
+        curve = self.result.curves[hit[0]]
+        k = hit[1]
+        removed = curve.steps[k]
+        last = (
+            f"; last removed L{curve.order[removed - 1][0]}H{curve.order[removed - 1][1]}" if removed else ""
+        )
+        return (
+            f"{curve.order_name} order: {removed} of {len(curve.order)} heads removed "
+            f"({curve.fractions[k]:.0%}), accuracy {100 * curve.accuracy[k]:.1f}%{last}"
+        )
+
+    # -- painting --------------------------------------------------------------------------------
+    def paintEvent(self, _event: object) -> None:
+        p = self.begin_paint(self.result is not None)
+        if p is None:
+            return
+        p.setRenderHint(p.RenderHint.Antialiasing)
+        pal = self.palette()
+        ink = pal.color(QPalette.ColorRole.WindowText)
+        r = self.plot_rect()
+        fm = self.fontMetrics()
+        grid = dim_text(pal, 0.18)
+        p.setPen(dim_text(pal, 0.85))
+        for k in range(6):
+            v, tick = k / 5, k * 20
+            y = self.point(0, v * self.top).y()
+            x = self.point(v, 0).x()
+            p.setPen(QPen(grid, 1))
+            p.drawLine(QPointF(r.left(), y), QPointF(r.right(), y))
+            p.drawLine(QPointF(x, r.top()), QPointF(x, r.bottom()))
+            p.setPen(dim_text(pal, 0.85))
+            p.drawText(
+                QRectF(0, y - 8, PAD_LEFT - 6, 16),
+                Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
+                f"{100 * v * self.top:.0f}%",
+            )
+            p.drawText(
+                QRectF(x - 30, r.bottom() + 2, 60, fm.height()), Qt.AlignmentFlag.AlignHCenter, f"{tick}%"
+            )
+        p.drawText(
+            QRectF(r.left(), r.bottom() + fm.height() + 2, r.width(), fm.height()),
+            Qt.AlignmentFlag.AlignHCenter,
+            f"fraction of the {self.total} heads switched off",
+        )
+        p.drawText(
+            QRectF(r.left(), 2, r.width(), PAD_TOP - 4),
+            Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter,
+            "accuracy",
+        )
+        p.setPen(QPen(ink, 1))
+        p.drawLine(r.bottomLeft(), r.bottomRight())
+        p.drawLine(r.bottomLeft(), r.topLeft())
+        chosen = len(self.result.removed) / self.total
+        mark = accent(pal)
+        p.setPen(QPen(mark, 1.5, Qt.PenStyle.DashDotLine))
+        x = self.point(chosen, 0).x()
+        p.drawLine(QPointF(x, r.top()), QPointF(x, r.bottom()))
+        p.setPen(mark)
+        label = f"chosen: {len(self.result.removed)} heads"
+        lx = min(x + 4, r.right() - fm.horizontalAdvance(label))
+        p.drawText(QPointF(lx, r.top() + fm.ascent()), label)
+        for i, curve in enumerate(self.result.curves):
+            dash, marker, alpha = STYLES[i % len(STYLES)]
+            colour = QColor(ink)
+            colour.setAlphaF(alpha)
+            pts = [self.point(f, a) for f, a in zip(curve.fractions, curve.accuracy)]
+            p.setPen(QPen(colour, 2.0, dash))
+            p.setBrush(Qt.BrushStyle.NoBrush)
+            p.drawPolyline(pts)
+            p.setPen(QPen(colour, 1.0))
+            p.setBrush(colour)
+            size = 3.0 if len(pts) < 40 else 2.0
+            for pt in pts:
+                draw_marker(p, pt, marker, size)
+        self._legend(p, r, ink)
+        if self._hover is not None:
+            pt = self.points_of(*self._hover)
+            p.setBrush(Qt.BrushStyle.NoBrush)
+            p.setPen(QPen(accent(pal), 2.0))
+            p.drawEllipse(pt, 6, 6)
+        p.end()
+
+    def points_of(self, curve: int, step: int) -> QPointF:
+        c = self.result.curves[curve]
+        return self.point(c.fractions[step], c.accuracy[step])
+
+    def _legend(self, p, r: QRectF, ink: QColor) -> None:
+        fm = self.fontMetrics()
+        names = [c.order_name for c in self.result.curves]
+        x = r.right() - sum(fm.horizontalAdvance(n) + 56 for n in names)
+        y = PAD_TOP / 2
+        for i, name in enumerate(names):
+            dash, marker, alpha = STYLES[i % len(STYLES)]
+            colour = QColor(ink)
+            colour.setAlphaF(alpha)
+            p.setPen(QPen(colour, 2.0, dash))
+            p.drawLine(QPointF(x, y), QPointF(x + 32, y))
+            p.setPen(QPen(colour, 1.0))
+            p.setBrush(colour)
+            draw_marker(p, QPointF(x + 16, y), marker, 3.0)
+            p.setPen(ink)
+            p.drawText(QPointF(x + 38, y + fm.ascent() / 2 - 1), name)
+            x += fm.horizontalAdvance(name) + 56

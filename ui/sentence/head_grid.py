@@ -1,0 +1,398 @@
+"""The head mosaic: every head's attention for the sentence, one row per layer.
+
+Drawing path (fast from 4 x 4 to 24 x 16 heads): all cells are resampled to
+the on-screen cell size and coloured in numpy with one lookup-table pass,
+assembled into a single RGBA image with the gaps and metric meters already in
+place, wrapped in one QImage and cached. A repaint is then one ``drawImage``
+plus the layer/head labels and the selection frame.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+from PySide6.QtCore import QPoint, QRect, QSize, Qt, Signal
+from PySide6.QtGui import QColor, QFont, QImage, QKeyEvent, QMouseEvent, QPainter, QPalette, QPen
+from PySide6.QtWidgets import QWidget
+
+from ui.widgets.colormap import LUT, accent, dim_text, rgba_image, to_codes
+from ui.widgets.hover_view import HoverView
+from ui.widgets.legend import meter_colours
+
+MAX_CELL = 150
+NUMBER_LANE = 17
+"""Height of the lane under a cell when the metric value is printed there."""
+BAR_LANE = 6
+THIN_LANE = 4
+"""Lane of the smallest cells: a 2-pixel meter, so the metric stays visible even at 24 x 16 heads."""
+
+
+@dataclass(frozen=True)
+class GridGeometry:
+    """Where the cells sit inside the widget."""
+
+    left: int
+    top: int
+    cell: int
+    gap: int
+    lane: int
+    layers: int
+    heads: int
+
+    @property
+    def pitch_x(self) -> int:
+        return self.cell + self.gap
+
+    @property
+    def pitch_y(self) -> int:
+        return self.cell + self.lane + self.gap
+
+    def cell_rect(self, layer: int, head: int) -> QRect:
+        return QRect(self.left + head * self.pitch_x, self.top + layer * self.pitch_y, self.cell, self.cell)
+
+    def slot_rect(self, layer: int, head: int) -> QRect:
+        """The cell plus its meter lane."""
+        r = self.cell_rect(layer, head)
+        return QRect(r.x(), r.y(), self.cell, self.cell + self.lane)
+
+    def cell_at(self, x: int, y: int) -> tuple[int, int] | None:
+        cx, cy = x - self.left, y - self.top
+        if cx < 0 or cy < 0:
+            return None
+        head, layer = cx // self.pitch_x, cy // self.pitch_y
+        if head >= self.heads or layer >= self.layers:
+            return None
+        if cx - head * self.pitch_x >= self.cell or cy - layer * self.pitch_y >= self.cell + self.lane:
+            return None
+        return int(layer), int(head)
+
+
+def resample_cells(attention: np.ndarray, cell: int) -> np.ndarray:
+    """Resize every head's [m, m] map to [cell, cell].
+
+    Enlarging repeats pixels (nearest); shrinking takes the **maximum** of each
+    block, so a thin pattern such as a previous-token diagonal never vanishes
+    from a small cell.
+    """
+    m = attention.shape[-1]
+    if cell >= m:
+        idx = np.arange(cell) * m // cell
+        return np.take(np.take(attention, idx, axis=-2), idx, axis=-1)
+    return _block_max(_block_max(attention, cell, attention.ndim - 2), cell, attention.ndim - 1)
+
+
+def _block_max(a: np.ndarray, cell: int, axis: int) -> np.ndarray:
+    """Maximum over ``cell`` near-equal consecutive blocks along ``axis``.
+
+    Gathers the j-th element of every block for j < k (the longest block) and keeps the running
+    maximum: k vectorised passes, fast even along the last axis (a reduction over a tiny
+    innermost axis is not).
+    """
+    m = a.shape[axis]
+    starts = np.arange(cell) * m // cell
+    ends = np.append(starts[1:], m)
+    out = np.take(a, starts, axis=axis)
+    for j in range(1, int((ends - starts).max())):
+        np.maximum(out, np.take(a, np.minimum(starts + j, ends - 1), axis=axis), out=out)
+    return out
+
+
+def mosaic_rgba(
+    attention: np.ndarray,
+    geometry: GridGeometry,
+    *,
+    per_head: bool,
+    meter: np.ndarray | None,
+    background: tuple[int, int, int, int],
+    track: tuple[int, int, int, int],
+    fill: tuple[int, int, int, int],
+) -> np.ndarray:
+    """Colour every head and lay the cells out in one RGBA array.
+
+    Parameters
+    ----------
+    attention : ndarray of shape (layers, heads, m, m)
+    geometry : GridGeometry
+        Cell size, gap and lane height in pixels.
+    per_head : bool
+        Scale each head from 0 to its own largest weight (else 0 to 1).
+    meter : ndarray of shape (layers, heads) in [0, 1], optional
+        Fill fraction of each cell's meter bar.
+
+    Returns
+    -------
+    ndarray of shape (layers * pitch_y, heads * pitch_x, 4), uint8
+    """
+    L, H = attention.shape[:2]
+    c, g, lane = geometry.cell, geometry.gap, geometry.lane
+    vmax = attention.max(axis=(-2, -1))[..., None, None] if per_head else 1.0
+    # Colour codes first, then resize the uint8 codes: the map is monotonic, so the block
+    # maximum of codes is the code of the block maximum, and bytes move 4x faster than floats.
+    codes = resample_cells(to_codes(attention, vmax), c)  # [L, H, c, c] uint8
+    cells = LUT32[codes]  # one packed RGBA word per pixel
+    out = np.empty((L, c + lane + g, H, c + g), dtype=np.uint32)
+    out[...] = _pack(background)
+    out[:, :c, :, :c] = cells.transpose(0, 2, 1, 3)
+    if meter is not None and lane > 0:
+        bar_top, bar_h = (c + 1, 2) if lane <= THIN_LANE else (c + 2, min(lane - 2, 4))
+        filled = np.arange(c)[None, None, :] < np.rint(np.clip(meter, 0, 1) * c)[:, :, None]  # [L, H, c]
+        colours = np.where(filled, _pack(fill), _pack(track))
+        out[:, bar_top : bar_top + bar_h, :, :c] = colours[:, None]
+    return (
+        out.reshape(L * (c + lane + g), H * (c + g))
+        .view(np.uint8)
+        .reshape(L * (c + lane + g), H * (c + g), 4)
+    )
+
+
+LUT32: np.ndarray = LUT.view(np.uint32).reshape(256)
+"""The weight map's lookup table with each RGBA entry packed in one 32-bit word (native byte order)."""
+
+
+def _pack(rgba: tuple[int, int, int, int]) -> np.uint32:
+    return np.array(rgba, dtype=np.uint8).view(np.uint32)[0]
+
+
+def _blend(colour: QColor, background: QColor) -> tuple[int, int, int, int]:
+    a = colour.alphaF()
+    return tuple(
+        int(round(a * x + (1 - a) * y)) for x, y in zip(colour.getRgb()[:3], background.getRgb()[:3])
+    ) + (255,)
+
+
+class HeadGrid(HoverView):
+    """All heads at a glance: click or use the arrow keys to pick one."""
+
+    head_clicked = Signal(int, int)
+    move_requested = Signal(int, int)
+    hovered = Signal(int, int)
+    """layer, head under the pointer; (-1, -1) when it leaves the cells."""
+
+    def __init__(self, parent: QWidget | None = None) -> None:
+        super().__init__("Head mosaic", parent)
+        self.attention: np.ndarray | None = None
+        """[layers, heads, m, m] as drawn."""
+        self.metric_values: np.ndarray | None = None
+        """[layers, heads] metric values as printed under the cells."""
+        self._meter: np.ndarray | None = None
+        self._per_head = True
+        self._selected = (0, 0)
+        self._summary: Callable[[int, int], str] | None = None
+        self._version = 0
+        self._cache_key: tuple | None = None
+        self._image: QImage | None = None
+        self.rebuilds = 0
+        """How many times the mosaic image was rebuilt (for tests and the benchmark)."""
+
+    # -- data --------------------------------------------------------------------------------------
+    def set_data(
+        self,
+        attention: np.ndarray,
+        metric: np.ndarray,
+        metric_range: tuple[float, float],
+        *,
+        per_head: bool,
+        summary: Callable[[int, int], str] | None = None,
+    ) -> None:
+        self.attention = attention
+        self.metric_values = metric
+        lo, hi = metric_range
+        self._meter = (metric - lo) / max(hi - lo, 1e-12)
+        self._per_head = per_head
+        self._summary = summary
+        self._version += 1
+        self.update()
+
+    def clear(self, note: str = "") -> None:
+        self.note = note
+        self.attention = self.metric_values = self._meter = None
+        self._version += 1
+        self.update()
+
+    def set_selection(self, layer: int, head: int) -> None:
+        if (layer, head) != self._selected:
+            self._selected = (layer, head)
+            self.update()
+
+    def selection(self) -> tuple[int, int]:
+        return self._selected
+
+    def cell_count(self) -> int:
+        return 0 if self.attention is None else int(self.attention.shape[0] * self.attention.shape[1])
+
+    # -- layout ------------------------------------------------------------------------------------
+    def sizeHint(self) -> QSize:
+        return QSize(520, 420)
+
+    def minimumSizeHint(self) -> QSize:
+        return QSize(200, 160)
+
+    def grid_geometry(self) -> GridGeometry | None:
+        if self.attention is None:
+            return None
+        L, H = self.attention.shape[:2]
+        fm = self.fontMetrics()
+        left = fm.horizontalAdvance(f"L{L - 1}") + 10
+        top = fm.height() + 4
+        avail_w, avail_h = self.width() - left - 4, self.height() - top - 4
+
+        def fit(gap: int, lane: int) -> int:
+            return int(min(avail_w / H - gap, avail_h / L - gap - lane))
+
+        # Largest meter lane the size allows: printed numbers, a bar, or a thin bar.
+        gap, lane = 3, NUMBER_LANE
+        cell = fit(gap, lane)
+        if cell < 46:
+            lane = BAR_LANE
+            cell = fit(gap, lane)
+        if cell < 12:
+            gap, lane = 2, THIN_LANE
+            cell = fit(gap, lane)
+        cell = int(np.clip(cell, 2, MAX_CELL))
+        used_w = H * (cell + gap) - gap
+        used_h = L * (cell + lane + gap) - gap
+        left += max((avail_w - used_w) // 2, 0)
+        top += max((avail_h - used_h) // 2, 0)
+        return GridGeometry(left, top, cell, gap, lane, L, H)
+
+    # -- drawing -----------------------------------------------------------------------------------
+    def _mosaic(self, geo: GridGeometry) -> QImage:
+        pal = self.palette()
+        bg = pal.color(QPalette.ColorRole.Window)
+        key = (self._version, geo, bg.rgba(), self._per_head)
+        if key == self._cache_key and self._image is not None:
+            return self._image
+        track, fill = meter_colours(pal)
+        rgba = mosaic_rgba(
+            self.attention,
+            geo,
+            per_head=self._per_head,
+            meter=self._meter,
+            background=bg.getRgb(),
+            track=_blend(track, bg),
+            fill=_blend(fill, bg),
+        )
+        image = rgba_image(rgba)
+        if geo.lane == NUMBER_LANE and self.metric_values is not None:
+            self._print_numbers(image, geo)
+        self._image, self._cache_key = image, key
+        self.rebuilds += 1
+        return image
+
+    def _print_numbers(self, image: QImage, geo: GridGeometry) -> None:
+        p = QPainter(image)
+        font = QFont(self.font())
+        font.setPixelSize(10)
+        p.setFont(font)
+        p.setPen(self.palette().color(QPalette.ColorRole.WindowText))
+        for layer in range(geo.layers):
+            for head in range(geo.heads):
+                x, y = head * geo.pitch_x, layer * geo.pitch_y + geo.cell + 6
+                p.drawText(
+                    QRect(x, y, geo.cell, geo.lane - 6),
+                    Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
+                    f"{self.metric_values[layer, head]:.2f}",
+                )
+        p.end()
+
+    def paintEvent(self, _event: object) -> None:
+        geo = self.grid_geometry()
+        p = self.begin_paint(geo is not None)
+        if p is None:
+            return
+        p.drawImage(QPoint(geo.left, geo.top), self._mosaic(geo))
+        self._draw_labels(p, geo)
+        self._draw_marks(p, geo)
+        p.end()
+
+    def _draw_labels(self, p: QPainter, geo: GridGeometry) -> None:
+        pal = self.palette()
+        dim = dim_text(pal)
+        sel_layer, sel_head = self._selected
+        bold = QFont(self.font())
+        bold.setBold(True)
+        fm = self.fontMetrics()
+        step = max(1, int(np.ceil((fm.horizontalAdvance("H00") + 4) / geo.pitch_x)))
+        for head in range(geo.heads):
+            if head != sel_head and (head % step or abs(head - sel_head) < step):
+                continue
+            r = geo.cell_rect(0, head)
+            is_sel = head == sel_head
+            p.setFont(bold if is_sel else self.font())
+            p.setPen(accent(pal) if is_sel else dim)
+            p.drawText(
+                QRect(r.x() - 8, 0, r.width() + 16, geo.top - 2),
+                Qt.AlignmentFlag.AlignHCenter | Qt.AlignmentFlag.AlignBottom,
+                f"H{head}",
+            )
+        row_step = max(1, int(np.ceil((fm.height()) / geo.pitch_y)))
+        for layer in range(geo.layers):
+            if layer != sel_layer and (layer % row_step or abs(layer - sel_layer) < row_step):
+                continue
+            r = geo.cell_rect(layer, 0)
+            is_sel = layer == sel_layer
+            p.setFont(bold if is_sel else self.font())
+            p.setPen(accent(pal) if is_sel else dim)
+            p.drawText(
+                QRect(0, r.y(), geo.left - 6, geo.cell),
+                Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
+                f"L{layer}",
+            )
+        p.setFont(self.font())
+
+    def _draw_marks(self, p: QPainter, geo: GridGeometry) -> None:
+        pal = self.palette()
+        if self._hover is not None and self._hover != self._selected:
+            pen = QPen(pal.color(QPalette.ColorRole.WindowText), 1, Qt.PenStyle.DashLine)
+            p.setPen(pen)
+            p.setBrush(Qt.BrushStyle.NoBrush)
+            p.drawRect(geo.slot_rect(*self._hover).adjusted(-1, -1, 0, 0))
+        width = 2 if geo.gap >= 3 else 1
+        r = geo.slot_rect(*self._selected).adjusted(-width, -width, width - 1, width - 1)
+        p.setBrush(Qt.BrushStyle.NoBrush)
+        p.setPen(
+            QPen(
+                accent(pal), width, Qt.PenStyle.SolidLine, Qt.PenCapStyle.SquareCap, Qt.PenJoinStyle.MiterJoin
+            )
+        )
+        p.drawRect(r)
+        if self.hasFocus():
+            p.setPen(QPen(pal.color(QPalette.ColorRole.Highlight), 1, Qt.PenStyle.DotLine))
+            p.drawRect(self.rect().adjusted(0, 0, -1, -1))
+
+    # -- events ------------------------------------------------------------------------------------
+    def mousePressEvent(self, event: QMouseEvent) -> None:
+        hit = self.hit_at(event.position().x(), event.position().y())
+        if hit is not None and event.button() == Qt.MouseButton.LeftButton:
+            self.head_clicked.emit(*hit)
+        super().mousePressEvent(event)
+
+    def hit_at(self, x: float, y: float) -> tuple[int, int] | None:
+        geo = self.grid_geometry()
+        return geo.cell_at(int(x), int(y)) if geo else None
+
+    def hover_text(self, hit: object) -> str:
+        return self._summary(*hit) if self._summary is not None else ""
+
+    def on_hover(self, hit: object | None) -> None:
+        self.hovered.emit(*(hit or (-1, -1)))
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:
+        moves = {
+            Qt.Key.Key_Up: (-1, 0),
+            Qt.Key.Key_Down: (1, 0),
+            Qt.Key.Key_Left: (0, -1),
+            Qt.Key.Key_Right: (0, 1),
+            Qt.Key.Key_PageUp: (-100, 0),
+            Qt.Key.Key_PageDown: (100, 0),
+            Qt.Key.Key_Home: (0, -100),
+            Qt.Key.Key_End: (0, 100),
+        }
+        step = moves.get(Qt.Key(event.key()))
+        if step is None or self.attention is None:
+            super().keyPressEvent(event)
+            return
+        self.move_requested.emit(*step)
+        event.accept()

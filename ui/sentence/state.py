@@ -1,0 +1,330 @@
+"""What the sentence page shows, as plain Python: no Qt in here.
+
+:class:`SentencePage` state holds the current analysis, the selected head and
+query token and the view options, and derives every array the views draw
+(token axis, per-head matrices, close-up matrix, relevance vector). Widgets
+only paint these arrays and forward user events back as calls on the state,
+so every number on screen can be checked without a window.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from inspector.checkpoint.tokens import TokenView, apply_view, make_view
+from inspector.measures.analysis import SentenceAnalysis
+from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
+from inspector.measures.rollout import FLOW_MAX_TOKENS
+
+SOURCES: dict[str, str] = {
+    "head": "Selected head",
+    "layer_mean": "Layer mean",
+    "rollout": "Rollout",
+    "flow": "Flow",
+    "value_head": "Value-weighted head",
+}
+"""What the close-up and the arcs show (key -> menu text)."""
+
+RELEVANCE_SOURCES: dict[str, str] = {
+    "rollout": "Rollout",
+    "flow": "Flow",
+    "value": "Value-weighted, last layer",
+}
+"""Where the relevance band takes the classification token's row from."""
+
+SCALES: dict[str, str] = {
+    "own": "each head from 0 to its own largest weight",
+    "shared": "every head from 0 to 1",
+}
+"""Colour scales of the head mosaic."""
+
+BOUNDED_METRICS = frozenset(
+    {"entropy_normalized", "special_share", "self_share", "prev_share", "next_share", "confidence"}
+)
+"""Metrics that live in [0, 1]; the others (entropy in nats, distance in tokens) are scaled to their maximum."""
+
+
+def metric_range(name: str, values: np.ndarray) -> tuple[float, float]:
+    """The span a metric's meter covers: [0, 1] for shares, [0, largest value] otherwise."""
+    if name in BOUNDED_METRICS:
+        return 0.0, 1.0
+    top = float(np.nanmax(values)) if np.size(values) else 1.0
+    return 0.0, top if top > 0 else 1.0
+
+
+LINK_MODES: dict[str, str] = {"query": "From the query token", "threshold": "Every link above a threshold"}
+
+
+MIN_QUERY_LINK = 0.02
+"""In query mode, links lighter than this are not drawn as arcs (their numbers stay on hover)."""
+
+
+def arc_links(matrix: np.ndarray, query: int, mode: str, threshold: float) -> list[tuple[int, int, float]]:
+    """(query, key, weight) of every arc to draw: the query's row, or every pair above ``threshold``.
+
+    A token's link to itself is never an arc.
+    """
+    if mode == "query":
+        row = matrix[query]
+        return [
+            (query, k, float(row[k])) for k in range(row.shape[0]) if k != query and row[k] >= MIN_QUERY_LINK
+        ]
+    qs, ks = np.nonzero(matrix >= threshold)
+    return [(int(q), int(k), float(matrix[q, k])) for q, k in zip(qs, ks) if q != k]
+
+
+@dataclass
+class ViewOptions:
+    """User choices that shape every view of the sentence page."""
+
+    metric: str = "entropy_normalized"
+    source: str = "head"
+    relevance: str = "rollout"
+    words: bool = False
+    hide_special: bool = False
+    links: str = "query"
+    threshold: float = 0.15
+    scale: str = "own"
+
+
+@dataclass
+class MatrixData:
+    """One square matrix on the current token axis, with what it is."""
+
+    matrix: np.ndarray | None
+    """[m, m] rows = queries, columns = keys; None while it is still being computed."""
+    labels: list[str]
+    special: np.ndarray
+    view: str
+    """Name of the view ("Selected head", "Rollout" ...)."""
+    where: str
+    """Which layer/head it comes from ("layer 2, head 5", "all layers" ...)."""
+    note: str = ""
+    """Why the matrix is missing, or a remark on how it was made."""
+
+
+@dataclass
+class RelevanceData:
+    """The classification token's relevance over the shown tokens."""
+
+    values: np.ndarray | None
+    labels: list[str]
+    special: np.ndarray
+    source: str
+    note: str = ""
+
+
+def classification_index(special: np.ndarray) -> int:
+    """Position of the classification token: the first special token, else 0 (common practice, no source)."""
+    hits = np.flatnonzero(np.asarray(special, dtype=bool))
+    return int(hits[0]) if hits.size and hits[0] == 0 else 0
+
+
+@dataclass
+class SentencePage:
+    """State of the sentence page (analysis, selection, options) and the arrays derived from it."""
+
+    analysis: SentenceAnalysis | None = None
+    options: ViewOptions = field(default_factory=ViewOptions)
+    layer: int = 0
+    head: int = 0
+    query_piece: int = 0
+    """The query token as a piece position (kept across word/piece switches)."""
+    expected: str | None = None
+    flow: np.ndarray | None = None
+    """Attention flow [n, n] on pieces, filled in by a background job."""
+    _cache: dict = field(default_factory=dict, repr=False)
+
+    # -- changes ---------------------------------------------------------------------------------
+    def set_analysis(self, analysis: SentenceAnalysis | None) -> None:
+        """Show a new analysis; keep the selection where it still exists."""
+        self.analysis = analysis
+        self.flow = None
+        self._cache.clear()
+        if analysis is not None:
+            self.layer = min(self.layer, analysis.num_layers - 1)
+            self.head = min(self.head, analysis.num_heads - 1)
+            self.query_piece = min(self.query_piece, len(analysis.tokens) - 1)
+
+    def set_flow(self, analysis: SentenceAnalysis, flow: np.ndarray) -> bool:
+        """Store a flow result if it belongs to the current analysis; False if it is stale."""
+        if analysis is not self.analysis:
+            return False
+        self.flow = flow
+        self._cache.clear()
+        return True
+
+    def set_option(self, name: str, value: object) -> None:
+        if not hasattr(self.options, name):
+            raise AttributeError(name)
+        setattr(self.options, name, value)
+        self._cache.clear()
+
+    def select(self, layer: int, head: int) -> None:
+        if self.analysis is None:
+            return
+        self.layer = int(np.clip(layer, 0, self.analysis.num_layers - 1))
+        self.head = int(np.clip(head, 0, self.analysis.num_heads - 1))
+
+    def move(self, d_layer: int, d_head: int) -> None:
+        """Move the selected head by whole rows/columns (stops at the edges)."""
+        self.select(self.layer + d_layer, self.head + d_head)
+
+    def set_query(self, view_index: int) -> None:
+        """Make the token at ``view_index`` (on the current axis) the query."""
+        groups = self.view().groups
+        if groups:
+            self.query_piece = groups[int(np.clip(view_index, 0, len(groups) - 1))][0]
+
+    def move_query(self, step: int) -> None:
+        self.set_query(self.query_index() + step)
+
+    # -- derived ---------------------------------------------------------------------------------
+    @property
+    def ready(self) -> bool:
+        return self.analysis is not None
+
+    def view(self) -> TokenView:
+        key = ("view",)
+        if key not in self._cache:
+            a = self._require()
+            self._cache[key] = make_view(
+                a.tokens,
+                a.special,
+                a.word_ids,
+                words=self.options.words,
+                drop_special=self.options.hide_special,
+            )
+        return self._cache[key]
+
+    def query_index(self) -> int:
+        """The query token's position on the current axis (first shown token if it is hidden)."""
+        for i, group in enumerate(self.view().groups):
+            if self.query_piece in group:
+                return i
+        return 0
+
+    def head_matrices(self) -> np.ndarray:
+        """Every head's attention on the current axis, [layers, heads, m, m] float32."""
+        key = ("heads",)
+        if key not in self._cache:
+            a = self._require()
+            out = a.attention if self._identity_view() else apply_view(a.attention, self.view())
+            self._cache[key] = np.ascontiguousarray(out, dtype=np.float32)
+        return self._cache[key]
+
+    def metric_values(self) -> np.ndarray:
+        """The chosen metric for every head, [layers, heads] (computed on pieces by the core)."""
+        return np.asarray(self._require().head_metrics.get(self.options.metric), dtype=np.float64)
+
+    def metric_label(self) -> str:
+        return METRIC_LABELS[self.options.metric]
+
+    def focus(self) -> MatrixData:
+        """The matrix of the close-up (and of the arcs) for the chosen source."""
+        key = ("focus", self.options.source, self.layer, self.head)
+        if key in self._cache:
+            return self._cache[key]
+        a = self._require()
+        view = self.view()
+        src = self.options.source
+        note = ""
+        pieces: np.ndarray | None
+        if src == "head":
+            pieces, where = a.attention[self.layer, self.head], f"layer {self.layer}, head {self.head}"
+        elif src == "layer_mean":
+            pieces = a.attention[self.layer].mean(axis=0)
+            where = f"layer {self.layer}, mean of {a.num_heads} heads"
+        elif src == "rollout":
+            pieces, where = a.rollout, f"all {a.num_layers} layers"
+            note = "residual 0.5, heads averaged"
+        elif src == "flow":
+            pieces, where = self.flow, f"all {a.num_layers} layers"
+            note = self.flow_note() or "residual 0.5, heads averaged"
+        elif src == "value_head":
+            pieces = a.value_weighted[self.layer, self.head]
+            where = f"layer {self.layer}, head {self.head}"
+            note = "weight x norm of the transformed value"
+        else:
+            raise KeyError(src)
+        matrix = None
+        if pieces is not None:
+            matrix = (
+                pieces if self._identity_view() else apply_view(np.asarray(pieces, dtype=np.float64), view)
+            )
+            matrix = np.asarray(matrix, dtype=np.float64)
+        data = MatrixData(matrix, list(view.labels), view.special, SOURCES[src], where, note)
+        self._cache[key] = data
+        return data
+
+    def flow_note(self) -> str:
+        """Why flow is unavailable, or '' if it is (or will be) computed."""
+        a = self._require()
+        if len(a.tokens) > FLOW_MAX_TOKENS:
+            return f"flow is limited to {FLOW_MAX_TOKENS} tokens (this sentence has {len(a.tokens)})"
+        if self.flow is None:
+            return "computing flow..."
+        return ""
+
+    def needs_flow(self) -> bool:
+        """True when a shown view wants attention flow that is not there yet and can be computed."""
+        if self.analysis is None or self.flow is not None or len(self.analysis.tokens) > FLOW_MAX_TOKENS:
+            return False
+        return self.options.source == "flow" or self.options.relevance == "flow"
+
+    def relevance(self) -> RelevanceData:
+        """The classification token's row of rollout / flow / value-weighted attention on the shown tokens.
+
+        Piece values are summed within a word; with special tokens hidden the
+        shown values are renormalised to sum to 1.
+        """
+        key = ("relevance", self.options.relevance)
+        if key in self._cache:
+            return self._cache[key]
+        a = self._require()
+        view = self.view()
+        cls = classification_index(a.special)
+        src = self.options.relevance
+        note = f"row of '{a.tokens[cls]}'"
+        row: np.ndarray | None
+        if src == "rollout":
+            row = a.rollout[cls]
+        elif src == "flow":
+            row = None if self.flow is None else self.flow[cls]
+            note = self.flow_note() or note
+        elif src == "value":
+            last = a.layer_value_weighted[-1][cls]
+            row = last / max(float(last.sum()), 1e-12)
+        else:
+            raise KeyError(src)
+        values = None
+        if row is not None:
+            values = np.array([float(np.sum(row[g])) for g in view.groups])
+            if self.options.hide_special and values.sum() > 0:
+                values = values / values.sum()
+        data = RelevanceData(values, list(view.labels), view.special, RELEVANCE_SOURCES[src], note)
+        self._cache[key] = data
+        return data
+
+    def is_misfire(self) -> bool:
+        """True when an expected label is set and the prediction differs from it."""
+        a = self.analysis
+        return bool(a and a.prediction and self.expected and self.expected != a.prediction.label)
+
+    def head_summary(self, layer: int, head: int) -> str:
+        """Every metric of one head, one per line (hover text)."""
+        m = self._require().head_metrics
+        lines = [f"layer {layer}, head {head}"]
+        lines += [f"{METRIC_LABELS[name]}: {float(m.get(name)[layer, head]):.3f}" for name in METRIC_NAMES]
+        return "\n".join(lines)
+
+    # -- helpers ---------------------------------------------------------------------------------
+    def _identity_view(self) -> bool:
+        return not self.options.words and not self.options.hide_special
+
+    def _require(self) -> SentenceAnalysis:
+        if self.analysis is None:
+            raise RuntimeError("no sentence analysed yet")
+        return self.analysis
