@@ -7,16 +7,19 @@ keep full-precision numbers under their stable names and do not use this module.
 
 The rules:
 
-- a head is ``L2H3`` (layer and head counted from 0); a layer alone is ``L2``;
+- a head is ``L2H3`` (layer and head counted from 0); a layer alone is ``L2``; a head
+  on the column axis of a layers-by-heads grid (whose rows say ``L2``) is ``H3``;
 - probabilities, accuracies and F1 scores are percentages with one decimal
   (``85.4%``), never fractions;
 - a change of such a score, and a tolerance on it, is in percentage points with one
-  decimal (``1.0 points``);
+  decimal (``1.0 point``, ``2.5 points``);
 - weights and relevance print with three decimals (``0.080``); a column of values of
   mixed size prints with one number of decimals chosen for the column
   (:func:`column`), so the decimal points line up;
 - signed values always carry their sign (``+0.120``, ``\u22120.045``);
-- counts agree with their noun (``1 utterance``, ``2 utterances``).
+- a rank correlation (Spearman rho) has two decimals and its sign (``+0.42``);
+- counts agree with their noun (``1 utterance``, ``2 utterances``);
+- a missing value (None, NaN) is ``n/a``.
 """
 
 from __future__ import annotations
@@ -36,6 +39,11 @@ def head_name(layer: int, head: int) -> str:
 def layer_name(layer: int) -> str:
     """``L{layer}``, counted from 0."""
     return f"L{int(layer)}"
+
+
+def head_tick(head: int) -> str:
+    """``H{head}``: a head on the column axis of a layers-by-heads grid whose rows are :func:`layer_name`."""
+    return f"H{int(head)}"
 
 
 def parse_head_name(text: str) -> tuple[int, int]:
@@ -61,8 +69,10 @@ def _minus(text: str) -> str:
     return MINUS + text[1:] if text.startswith("-") else text
 
 
-def percent(fraction: float, decimals: int = 1) -> str:
-    """A probability, accuracy or F1 score given as a fraction, shown as ``85.4%``."""
+def percent(fraction: float | None, decimals: int = 1) -> str:
+    """A probability, accuracy or F1 score given as a fraction, shown as ``85.4%`` (None: ``n/a``)."""
+    if fraction is None:
+        return "n/a"
     value = float(fraction)
     return _finite(value) or _minus(f"{100.0 * value:.{decimals}f}%")
 
@@ -99,10 +109,21 @@ def signed(value: float, decimals: int = 3) -> str:
     return _minus(text)
 
 
-def number(value: float, significant: int = 3) -> str:
-    """A quantity of any size with ``significant`` digits: ``1.42``, ``0.0803``, ``8.01e-05``, ``1250``."""
+def number(value: float, significant: int = 3, *, sign: bool = False) -> str:
+    """A quantity of any size with ``significant`` digits: ``1.42``, ``0.0803``, ``8.01e-05``, ``1250``.
+
+    ``sign=True`` writes the sign of a signed quantity: ``+3.1e-07``, ``\u22120.25``.
+    """
     v = float(value)
-    return _finite(v) or _minus(f"{v:.{significant}g}")
+    text = f"{v:+.{significant}g}" if sign and v != 0 else f"{v:.{significant}g}"
+    return _finite(v) or _minus(text)
+
+
+def correlation(rho: float | None) -> str:
+    """A rank correlation with its sign and two decimals: ``+0.42``, ``\u22120.10``; None or NaN: ``n/a``."""
+    if rho is None:
+        return "n/a"
+    return signed(rho, 2)
 
 
 def decimals_for(values: Iterable[float], significant: int = 3, most: int = 6) -> int:

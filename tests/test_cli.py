@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 
 import numpy as np
 import pytest
@@ -57,11 +58,12 @@ def test_analyze_bare_encoder_and_npz(minilm_dir, tmp_path, capsys):
 
 
 def test_analyze_table_output(minilm_dir, capsys):
-    """Reference: the table lists one line per head (6 x 12 = 72 for all-MiniLM-L6-v2)."""
+    """Reference: the table lists one line per head (6 x 12 = 72 for all-MiniLM-L6-v2), named L0H0 ... L5H11."""
     assert main(["analyze", str(minilm_dir), "--text", TEXT]) == 0
     lines = capsys.readouterr().out.splitlines()
     assert lines[0].startswith("model:")
-    assert sum(1 for line in lines if line.split() and line.split()[0].isdigit()) == 72
+    names = [line.split()[0] for line in lines if re.fullmatch(r"L\d+H\d+", (line.split() or [""])[0])]
+    assert names == [f"L{layer}H{head}" for layer in range(6) for head in range(12)]
 
 
 def test_errors_are_one_line_and_nonzero(tmp_path, capsys):

@@ -70,7 +70,7 @@ def test_fail_policy_names_the_bad_rows(tmp_path):
     with pytest.raises(HeadcountError) as info:
         read_labelled(path, known_labels=INTENTS, on_bad_row="fail")
     msg = str(info.value)
-    assert "2 bad row(s)" in msg and "line 3" in msg and "line 4" in msg and "\n" not in msg
+    assert "2 bad rows" in msg and "line 3" in msg and "line 4" in msg and "\n" not in msg
 
 
 def test_jsonl_field_names_and_broken_lines(tmp_path):

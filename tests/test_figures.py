@@ -73,7 +73,7 @@ def test_caption_names_model_sentence_view_metric_and_scale():
         "ferry_intents",
         "is the 9am sailing on time",
         "Close-up",
-        "layer 2, head 5",
+        "L2H5",
         "Entropy (nats)",
         "0 to the largest value",
     )
@@ -82,7 +82,7 @@ def test_caption_names_model_sentence_view_metric_and_scale():
         "ferry_intents",
         "is the 9am sailing on time",
         "Close-up",
-        "layer 2, head 5",
+        "L2H5",
         "Entropy",
         "cividis, 0 to the largest value",
     ):
@@ -97,7 +97,7 @@ def test_every_figure_writes_each_format(tmp_path, suffix):
     """
     att = _attention(4, 6, 9)
     labels = ["[CLS]", "can", "i", "bring", "my", "dog", "on", "board", "[SEP]"]
-    cap = figures.Caption("tiny", " ".join(labels[1:-1]), "test", "layer 0, head 0")
+    cap = figures.Caption("tiny", " ".join(labels[1:-1]), "test", "L0H0")
     made = {
         "matrix": figures.matrix_figure(att[0, 0], labels, cap, query=2),
         "mosaic": figures.mosaic_figure(att, att.max(axis=(-1, -2)), cap, per_head=True, selected=(1, 2)),

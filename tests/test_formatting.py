@@ -16,6 +16,7 @@ def test_head_names_round_trip():
     """
     assert fmt.head_name(2, 3) == "L2H3"
     assert fmt.layer_name(11) == "L11"
+    assert fmt.layer_name(2) + fmt.head_tick(3) == fmt.head_name(2, 3)
     for layer in range(0, 25, 7):
         for head in range(0, 17, 5):
             assert fmt.parse_head_name(fmt.head_name(layer, head)) == (layer, head)
@@ -34,6 +35,8 @@ def test_percent_and_points():
     assert fmt.percent(0.98712) == "98.7%"
     assert fmt.percent(1.0) == "100.0%"
     assert fmt.percent(float("nan")) == "n/a"
+    assert fmt.percent(None) == "n/a"
+    assert fmt.percent(0.2, 0) == "20%"
     assert fmt.points(0.01) == "1.0 point"
     assert fmt.points(0.025) == "2.5 points"
     assert fmt.points(-0.023, signed=True) == "\u22122.3 points"
@@ -52,6 +55,21 @@ def test_weights_signed_and_numbers():
     assert fmt.number(8.01e-05) == "8.01e-05"
     assert fmt.number(1.4201) == "1.42"
     assert fmt.signed(math.inf) == "\u221e"
+    assert fmt.number(3.14e-7, sign=True) == "+3.14e-07"
+    assert fmt.number(-0.25, sign=True) == "\u22120.25"
+    assert fmt.number(0.0, sign=True) == "0"
+
+
+def test_rank_correlations():
+    """Spearman rho with its sign and two decimals; undefined ones read n/a.
+
+    Reference: Spearman's rho lies in [-1, 1] (Spearman 1904); common practice, no source, for the display.
+    """
+    assert fmt.correlation(0.4249) == "+0.42"
+    assert fmt.correlation(-0.1) == "\u22120.10"
+    assert fmt.correlation(1.0) == "+1.00"
+    assert fmt.correlation(None) == "n/a"
+    assert fmt.correlation(float("nan")) == "n/a"
 
 
 def test_a_column_lines_up():

@@ -98,25 +98,26 @@ def test_run_fills_the_page_with_the_core_and_sklearn_numbers(qtbot, window, cla
     assert report.evaluation.macro_f1 == pytest.approx(f1_score(y_true, y_pred, average="macro"))
     summary = page.summary.text()
     assert f"{100 * accuracy_score(y_true, y_pred):.1f}%" in summary
-    assert f"{f1_score(y_true, y_pred, average='macro'):.3f}" in summary
+    assert f"{100 * f1_score(y_true, y_pred, average='macro'):.1f}%" in summary
 
     p, r, f, s = precision_recall_fscore_support(y_true, y_pred, labels=labels, zero_division=0)
     assert page.intents.rowCount() == len(INTENTS)
     for i, name in enumerate(INTENTS):
         cells = [page.intents.item(i, c).text() for c in range(5)]
-        assert cells == [name, f"{p[i]:.3f}", f"{r[i]:.3f}", f"{f[i]:.3f}", str(s[i])]
+        assert cells == [name, f"{100 * p[i]:.1f}%", f"{100 * r[i]:.1f}%", f"{100 * f[i]:.1f}%", str(s[i])]
 
     cm = confusion_matrix(y_true, y_pred, labels=labels)
     assert page.confusion.row_names == list(INTENTS)
     assert [[int(t or 0) for t in row] for row in page.confusion.texts] == cm.tolist()
     np.testing.assert_allclose(page.confusion.values, cm / cm.sum(1, keepdims=True))
     hover = page.confusion.hover_text((0, 1))
-    assert f"{cm[0, 1]} utterance(s)" in hover and INTENTS[0] in hover and INTENTS[1] in hover
+    noun = "utterance" if cm[0, 1] == 1 else "utterances"
+    assert f"{cm[0, 1]} {noun} " in hover and INTENTS[0] in hover and INTENTS[1] in hover
 
     wrong = int((y_true != y_pred).sum())
     assert wrong > 0, "the random classifier should misroute some utterances"
     assert page.misfires.rowCount() == wrong
-    confidences = [float(page.misfires.item(i, 4).text()) for i in range(wrong)]
+    confidences = [float(page.misfires.item(i, 4).text().removesuffix("%")) for i in range(wrong)]
     assert confidences == sorted(confidences, reverse=True)
     for i in range(wrong):
         text = page.misfires.item(i, 1).text()
@@ -224,21 +225,21 @@ def test_bad_rows_are_reported_by_line_and_fail_policy_stops(qtbot, window, tmp_
     page = window.corpus_page
     assert run_and_wait(qtbot, window, path, text_field="text", label_field="label") == "done"
     note = page.data_note.text()
-    assert "6 utterances used" in note and "3 bad row(s)" in note
+    assert "6 utterances used" in note and "3 bad rows" in note
     assert "line 8: missing text" in note
     assert (
         "line 9: unknown label &#x27;lost_property&#x27;" in note
         or "line 9: unknown label 'lost_property'" in note
     )
     assert "line 10: missing label" in note
-    assert "lost_property" in note and "(1 rows)" in note
+    assert "lost_property" in note and "(1 row)" in note
     assert page.report.evaluation.total == 6
 
     previous = page.report
     page.bad_rows_box.setCurrentIndex(page.bad_rows_box.findData("fail"))
     assert run_and_wait(qtbot, window, path, text_field="text", label_field="label") == "failed"
     message = window.message_bar.text()
-    assert "3 bad row(s)" in message and "line 8" in message and "line 9" in message
+    assert "3 bad rows" in message and "line 8" in message and "line 9" in message
     assert page.report is previous
 
 

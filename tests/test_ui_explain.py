@@ -136,7 +136,7 @@ def test_open_explanation_holds_the_core_numbers_and_the_cli_agrees(
         ig = ev.integrated_gradients
         caption = page.original.captions.text()
         assert "64 steps" in caption and "\u2018pad\u2019" in caption and "removed" in caption
-        shown_error = float(caption.split("completeness error ")[1].split()[0])
+        shown_error = float(caption.split("completeness error ")[1].split()[0].replace("\u2212", "-"))
         assert shown_error == pytest.approx(ig.completeness_error, rel=0.06, abs=5e-8)
         for hint in ev.hints:
             assert hint[1:] in html.unescape(page.original.reading.text())
@@ -148,7 +148,10 @@ def test_open_explanation_holds_the_core_numbers_and_the_cli_agrees(
         for c, method in enumerate(("rollout", "value_weighted", "grad_rollout", "integrated_gradients")):
             rho = ev.faithfulness[method]
             text = grid.item(r, c).text().split()[0]
-            assert text == ("n/a" if rho is None else f"{rho:+.2f}")
+            signed = (
+                "0.00" if rho is not None and round(rho, 2) == 0 else f"{rho:+.2f}".replace("-", "\u2212")
+            )
+            assert text == ("n/a" if rho is None else signed)  # two decimals, sign unless it rounds to 0
     assert "misfire" in page.original.prediction.text()
     assert "Jain & Wallace 2019" in html.unescape(page.caution.text()) and page.caution.isVisible()
     # the command line gives the same numbers
@@ -186,7 +189,7 @@ def test_what_if_matches_compare_sentences(qtbot, window, tiny_dir, tiny, misfir
             sorted(abs(h.change) for h in shown), sorted(abs(h.change) for h in cmp.top_heads), **TOL
         )
         for h in shown:
-            assert f"L{h.layer} H{h.head}" in page.head_list.text()
+            assert f"L{h.layer}H{h.head}" in page.head_list.text()
     label = page.state.label()
     check_lanes(page.original.table, cmp.original, label)
     check_lanes(page.edited_side.table, cmp.edited, label)

@@ -25,6 +25,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel, load_checkpoint
 from inspector.figures.sentence import CAUTION
 from inspector.measures.analysis import SentenceAnalysis, analyze_sentence
@@ -349,12 +350,12 @@ class MainWindow(QMainWindow):
         self.runner.cancel("flow")
         self.sentence_page.set_model(lm)
         self.setWindowTitle(f"{lm.name} \u2014 Headcount")
-        kind = {"sequence-classification": f"{len(lm.labels)} labels", "encoder": "bare encoder"}.get(
+        kind = {"sequence-classification": fmt.count(len(lm.labels), "label"), "encoder": "bare encoder"}.get(
             lm.task, lm.task
         )
         self.model_label.setText(
-            f"{lm.name} \u00b7 {lm.model_type} \u00b7 {lm.num_layers} layers \u00d7 "
-            f"{lm.num_heads} heads \u00b7 {kind}"
+            f"{lm.name} \u00b7 {lm.model_type} \u00b7 {fmt.count(lm.num_layers, 'layer')} \u00d7 "
+            f"{fmt.count(lm.num_heads, 'head')} \u00b7 {kind}"
         )
         self._remember(lm.path)
         entry = self.sentence_page.bar.entry

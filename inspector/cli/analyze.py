@@ -9,6 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
+from inspector import formatting as fmt
 from inspector.cli.common import add_model_command, load_model
 from inspector.errors import HeadcountError
 
@@ -40,15 +41,17 @@ def analysis_json(result) -> dict:
 def _print_table(result, out) -> None:
     pred = result.prediction
     print(f"model: {result.model_name}", file=out)
-    print(f"tokens ({len(result.tokens)}): {' '.join(result.tokens)}", file=out)
+    print(f"{fmt.count(len(result.tokens), 'token')}: {' '.join(result.tokens)}", file=out)
     if pred is not None:
-        top = ", ".join(f"{lab} {p:.3f}" for lab, p in pred.top(3))
+        top = ", ".join(f"{lab} {fmt.percent(p)}" for lab, p in pred.top(3))
         print(f"prediction: {pred.label}   (top: {top})", file=out)
-    header = "layer head " + " ".join(f"{short:>8}" for _, short in _TABLE_COLUMNS)
-    print(header, file=out)
-    for row in result.heads_table():
-        cells = " ".join(f"{row[name]:8.3f}" for name, _ in _TABLE_COLUMNS)
-        print(f"{row['layer']:5d} {row['head']:4d} {cells}", file=out)
+    rows = result.heads_table()
+    names = [fmt.head_name(row["layer"], row["head"]) for row in rows]
+    width = max(len("head"), *(len(n) for n in names))
+    print(f"{'head':<{width}} " + " ".join(f"{short:>8}" for _, short in _TABLE_COLUMNS), file=out)
+    for name, row in zip(names, rows):
+        cells = " ".join(f"{fmt.weight(row[key]):>8}" for key, _ in _TABLE_COLUMNS)
+        print(f"{name:<{width}} {cells}", file=out)
 
 
 def cmd_analyze(args: argparse.Namespace) -> int:

@@ -14,6 +14,7 @@ import json
 import sys
 from typing import NoReturn
 
+from inspector import formatting as fmt
 from inspector.cli.common import add_model_command, load_model
 from inspector.corpus.dataset import BAD_ROW_POLICIES, read_labelled
 from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
@@ -78,43 +79,50 @@ class _Bar:
             self.bar.close()
 
 
+def _head(h: dict) -> str:
+    return fmt.head_name(h["layer"], h["head"])
+
+
 def _print_report(summary: dict, out_dir: str, out) -> None:
     data = summary["data"]
-    print(f"model: {summary['model']}   data: {data['file']} ({data['utterances']} utterances)", file=out)
+    print(
+        f"model: {summary['model']}   data: {data['file']} ({fmt.count(data['utterances'], 'utterance')})",
+        file=out,
+    )
     bad = data["bad_rows"]
     if bad:
-        print(f"skipped {len(bad)} bad row(s):", file=out)
+        print(f"skipped {fmt.count(len(bad), 'bad row')}:", file=out)
         for b in bad[:_SHOWN_BAD_ROWS]:
             print(f"  line {b['row']}: {b['reason']}", file=out)
         if len(bad) > _SHOWN_BAD_ROWS:
             print(f"  ... and {len(bad) - _SHOWN_BAD_ROWS} more (see summary.json)", file=out)
     if data["unknown_labels"]:
-        listed = ", ".join(f"{k} ({v})" for k, v in data["unknown_labels"].items())
+        listed = ", ".join(f"{k} ({fmt.count(v, 'row')})" for k, v in data["unknown_labels"].items())
         print(f"labels the model does not know: {listed}", file=out)
-    print(f"accuracy {summary['accuracy']:.4f}   macro-F1 {summary['macro_f1']:.4f}", file=out)
+    print(
+        f"accuracy {fmt.percent(summary['accuracy'])}   macro-F1 {fmt.percent(summary['macro_f1'])}", file=out
+    )
     misfires = summary["misfires"]
-    print(f"misfires: {len(misfires)}" + (" (most confident first)" if misfires else ""), file=out)
+    print(fmt.count(len(misfires), "misfire") + (" (most confident first)" if misfires else ""), file=out)
     for m in misfires[:5]:
         print(
-            f"  line {m['row']}: {m['expected']} -> {m['predicted']} ({m['confidence']:.2f})  {m['text']}",
+            f"  line {m['row']}: {m['expected']} -> {m['predicted']} ({fmt.percent(m['confidence'])})  {m['text']}",
             file=out,
         )
     imp = summary["importance"]
     if imp:
-        top = ", ".join(f"L{h['layer']}H{h['head']} {h['importance']:.2f}" for h in imp["most_important"][:3])
-        low = ", ".join(
-            f"L{h['layer']}H{h['head']} {h['importance']:.2f}" for h in imp["least_important"][:3]
-        )
+        top = ", ".join(f"{_head(h)} {fmt.weight(h['importance'])}" for h in imp["most_important"][:3])
+        low = ", ".join(f"{_head(h)} {fmt.weight(h['importance'])}" for h in imp["least_important"][:3])
         print(f"most important heads: {top}   least: {low}", file=out)
     red = summary["redundancy"]
-    groups = "; ".join(" ".join(f"L{h['layer']}H{h['head']}" for h in g) for g in red["groups"][:5]) or "none"
-    print(f"near-duplicate groups (JS <= {red['group_threshold']:g} bits): {groups}", file=out)
+    groups = "; ".join(" ".join(_head(h) for h in g) for g in red["groups"][:5]) or "none"
+    print(f"near-duplicate groups (JS <= {fmt.bits(red['group_threshold'])}): {groups}", file=out)
     pr = summary["pruning"]
     if pr:
-        after = "not measured" if pr["accuracy_after"] is None else f"{pr['accuracy_after']:.4f}"
+        after = "not measured" if pr["accuracy_after"] is None else fmt.percent(pr["accuracy_after"])
         print(
-            f"pruning ({pr['mask_order']}): remove {pr['heads_removed']} head(s) "
-            f"({pr['fraction_removed']:.0%}), accuracy {pr['accuracy_before']:.4f} -> {after}",
+            f"pruning ({pr['mask_order']}): remove {fmt.count(pr['heads_removed'], 'head')} "
+            f"({fmt.percent(pr['fraction_removed'])}), accuracy {fmt.percent(pr['accuracy_before'])} -> {after}",
             file=out,
         )
         print(f"caution: {CAUTION}", file=out)
@@ -211,7 +219,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         type=float,
         default=d.max_drop,
         help="export the most heads whose removal never cost more than this accuracy "
-        f"(fraction, default {d.max_drop:g}; 0.01 = one point)",
+        f"(a fraction: 0.01 = {fmt.points(0.01)}; default {d.max_drop:g} = {fmt.points(d.max_drop)})",
     )
     p.add_argument(
         "--remove",
@@ -246,7 +254,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         type=float,
         default=d.group_threshold,
         metavar="BITS",
-        help=f"near-duplicate cut in bits of mean JS divergence (default: {d.group_threshold:g})",
+        help=f"near-duplicate cut in bits of mean JS divergence (default: {fmt.bits(d.group_threshold)})",
     )
     p.add_argument(
         "--seed",

@@ -10,6 +10,7 @@ from typing import TextIO
 
 import numpy as np
 
+from inspector import formatting as fmt
 from inspector.cli.common import add_model_command, load_model
 from inspector.errors import HeadcountError
 from inspector.explanation.explain import CAUTION, RULE_NAMES, LabelEvidence, SentenceExplanation
@@ -27,14 +28,12 @@ COLUMNS = (
     ("occlusion", "occlusion"),
 )
 """Relevance columns of the text table: (JSON name, header)."""
+SIGNED_COLUMNS = frozenset({"integrated_gradients", "occlusion"})
+"""Columns that can be negative: printed with their sign."""
 
 
 def _floats(values: np.ndarray) -> list[float]:
     return [float(v) for v in np.asarray(values).ravel()]
-
-
-def _rho(value: float | None) -> str:
-    return "n/a" if value is None else f"{value:+.2f}"
 
 
 # ---------------------------------------------------------------------------
@@ -110,30 +109,34 @@ def comparison_json(cmp: WhatIfComparison) -> dict:
 
 def _print_label(ex: SentenceExplanation, ev: LabelEvidence, out: TextIO) -> None:
     roles = " + ".join(ev.roles)
-    print(f"\n== {ev.label} ({roles}, p={ev.probability:.3f}, logit {ev.logit:+.3f}) ==", file=out)
+    print(
+        f"\n== {ev.label} ({roles}, p={fmt.percent(ev.probability)}, logit {fmt.signed(ev.logit)}) ==",
+        file=out,
+    )
     width = max([4, *(len(w) for w in ex.words)])
     print(f"{'word':<{width}} " + " ".join(f"{head:>10}" for _, head in COLUMNS), file=out)
     table = ev.relevances(ex)
+    cells = {name: fmt.column(table[name], sign=name in SIGNED_COLUMNS) for name, _ in COLUMNS}
     for i, word in enumerate(ex.words):
-        print(f"{word:<{width}} " + " ".join(f"{table[name][i]:10.3g}" for name, _ in COLUMNS), file=out)
+        print(f"{word:<{width}} " + " ".join(f"{cells[name][i]:>10}" for name, _ in COLUMNS), file=out)
     ig = ev.integrated_gradients
     rel = ig.completeness_relative
-    rel_text = f" (relative {rel:.1e})" if np.isfinite(rel) else ""
+    rel_text = f" (relative {fmt.number(rel, 2)})" if np.isfinite(rel) else ""
     print(
-        f"Integrated Gradients: baseline '{ig.baseline}', {ig.steps} steps, {RULE_NAMES[ig.rule]}; "
-        f"logit {ig.logit_input:+.4f} at the input, {ig.logit_baseline:+.4f} at the baseline; "
-        f"completeness error {ig.completeness_error:+.2e}{rel_text}",
+        f"Integrated Gradients: baseline '{ig.baseline}', {fmt.count(ig.steps, 'step')}, {RULE_NAMES[ig.rule]}; "
+        f"logit {fmt.signed(ig.logit_input)} at the input, {fmt.signed(ig.logit_baseline)} at the baseline; "
+        f"completeness error {fmt.number(ig.completeness_error, sign=True)}{rel_text}",
         file=out,
     )
 
 
 def _print_faithfulness(ex: SentenceExplanation, out: TextIO) -> None:
     """The faithfulness table: methods down, labels across, then the hints."""
-    print(f"\nagreement with occlusion (Spearman rho over {len(ex.words)} words):", file=out)
+    print(f"\nagreement with occlusion (Spearman rho over {fmt.count(len(ex.words), 'word')}):", file=out)
     width = max(len(ev.label) for ev in ex.labels) + 2
     print(f"{'method':<26}" + "".join(f"{ev.label:>{width}}" for ev in ex.labels), file=out)
     for method, name in METHOD_LABELS.items():
-        cells = "".join(f"{_rho(ev.faithfulness.get(method)):>{width}}" for ev in ex.labels)
+        cells = "".join(f"{fmt.correlation(ev.faithfulness.get(method)):>{width}}" for ev in ex.labels)
         print(f"{name:<26}{cells}", file=out)
     for ev in ex.labels:
         for hint in ev.hints:
@@ -145,11 +148,11 @@ def print_explanation(ex: SentenceExplanation, out: TextIO) -> None:
     pred = ex.prediction
     print(f"model: {ex.model_name}", file=out)
     print(f"text: {ex.text}", file=out)
-    top = ", ".join(f"{lab} {p:.3f}" for lab, p in pred.top(3))
+    top = ", ".join(f"{lab} {fmt.percent(p)}" for lab, p in pred.top(3))
     line = f"prediction: {pred.label}   (top: {top})"
     if ex.expected is not None:
         verdict = "misfire" if ex.misfire else "as expected"
-        line += f"\nexpected: {ex.expected} (p={pred.probabilities[ex.expected]:.3f}): {verdict}"
+        line += f"\nexpected: {ex.expected} (p={fmt.percent(pred.probabilities[ex.expected])}): {verdict}"
     print(line, file=out)
     occ = "word removed" if ex.occlusion_mode == "remove" else f"word replaced by {ex.occlusion_replacement}"
     print(
@@ -166,13 +169,16 @@ def print_comparison(cmp: WhatIfComparison, out: TextIO) -> None:
     """Human-readable what-if comparison (the edited sentence's explanation is printed separately)."""
     a, b = cmp.original.prediction, cmp.edited.prediction
     print("\n== what-if ==", file=out)
-    print(f"original: {cmp.original.text}\n  -> {a.label} ({a.probabilities[a.label]:.3f})", file=out)
-    print(f"edited:   {cmp.edited.text}\n  -> {b.label} ({b.probabilities[b.label]:.3f})", file=out)
+    print(
+        f"original: {cmp.original.text}\n  -> {a.label} ({fmt.percent(a.probabilities[a.label])})", file=out
+    )
+    print(f"edited:   {cmp.edited.text}\n  -> {b.label} ({fmt.percent(b.probabilities[b.label])})", file=out)
     print("prediction " + ("changed" if cmp.prediction_changed else "unchanged"), file=out)
     for label in cmp.labels:
         shift = cmp.probability_shift(label)
         print(
-            f"  p({label}): {a.probabilities[label]:.3f} -> {b.probabilities[label]:.3f} ({shift:+.3f})",
+            f"  p({label}): {fmt.percent(a.probabilities[label])} -> {fmt.percent(b.probabilities[label])} "
+            f"({fmt.points(shift, signed=True)})",
             file=out,
         )
     edits = [c for c in cmp.word_changes if c.op != "equal"]
@@ -182,7 +188,11 @@ def print_comparison(cmp: WhatIfComparison, out: TextIO) -> None:
         print(f"  {c.op}: '{old}' -> '{new}'", file=out)
     print(f"heads that changed most in {METRIC_LABELS[cmp.metric].lower()}:", file=out)
     for h in cmp.top_heads:
-        print(f"  layer {h.layer} head {h.head}: {h.before:.3f} -> {h.after:.3f} ({h.change:+.3f})", file=out)
+        print(
+            f"  {fmt.head_name(h.layer, h.head)}: {fmt.weight(h.before)} -> {fmt.weight(h.after)} "
+            f"({fmt.signed(h.change)})",
+            file=out,
+        )
 
 
 # ---------------------------------------------------------------------------

@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Literal
 
+from inspector import formatting
 from inspector.errors import HeadcountError
 
 BadRowPolicy = Literal["skip", "fail"]
@@ -240,10 +241,8 @@ def read_labelled(
         shown = "; ".join(f"line {b.row}: {b.reason}" for b in out.bad_rows[:_SHOWN_IN_ERROR])
         more = len(out.bad_rows) - _SHOWN_IN_ERROR
         tail = f"; and {more} more" if more > 0 else ""
-        raise HeadcountError(f"{path.name}: {len(out.bad_rows)} bad row(s): {shown}{tail}")
+        raise HeadcountError(f"{path.name}: {formatting.count(len(out.bad_rows), 'bad row')}: {shown}{tail}")
     if not out.texts:
-        why = (
-            f" ({len(out.bad_rows)} bad row(s), first: line {out.bad_rows[0].row}: {out.bad_rows[0].reason})"
-        )
+        why = f" ({formatting.count(len(out.bad_rows), 'bad row')}, first: line {out.bad_rows[0].row}: {out.bad_rows[0].reason})"
         raise HeadcountError(f"{path.name}: no usable utterance" + (why if out.bad_rows else ""))
     return out

@@ -33,6 +33,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import torch
 
+from inspector import formatting as fmt
 from inspector.checkpoint.capture import AttentionRecorder, HeadGates
 from inspector.checkpoint.loader import LoadedModel
 from inspector.corpus.batching import EncodedSet, PaddedBatch, encode_set, length_limit
@@ -608,7 +609,9 @@ def run_corpus(
     at_limit = int((encoded.lengths >= limit).sum())
     if at_limit:
         report.notes.append(
-            f"{at_limit} utterance(s) reached the model's {limit}-token limit and were cut there."
+            f"{fmt.count(at_limit, 'utterance')} reached the model's {limit}-token limit and "
+            + ("was" if at_limit == 1 else "were")
+            + " cut there."
         )
     red = found.redundancy
     if red.rows_compared < red.rows_total:
@@ -666,8 +669,10 @@ def run_corpus(
         )
         if subset is not None:
             report.notes.append(
-                f"Pruning steps were evaluated on {len(subset)} of {len(data)} utterances (seeded draw)."
+                f"Pruning steps were evaluated on {len(subset)} of {fmt.count(len(data), 'utterance')} (seeded draw)."
             )
         if settings.prune_every > 1:
-            report.notes.append(f"Pruning accuracy was measured after every {settings.prune_every} heads.")
+            report.notes.append(
+                f"Pruning accuracy was measured after every {fmt.count(settings.prune_every, 'head')}."
+            )
     return report

@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
+from inspector import formatting as fmt
 from inspector.corpus.pruning import PRUNING_ORDERS
 from inspector.corpus.redundancy import DEFAULT_GROUP_THRESHOLD, DEFAULT_JS_ROWS
 from inspector.errors import HeadcountError
@@ -54,7 +55,9 @@ class CorpusSettings:
         if self.prune_subset is not None and self.prune_subset < 1:
             raise HeadcountError("the pruning subset must hold at least 1 utterance")
         if not 0 <= self.max_drop <= 1:
-            raise HeadcountError("the accuracy tolerance is a fraction in [0, 1] (0.01 = one point)")
+            raise HeadcountError(
+                f"the accuracy tolerance is a fraction in [0, 1] (0.01 = {fmt.points(0.01)})"
+            )
         total = lm.num_layers * lm.num_heads
         if self.remove is not None and not 0 <= self.remove <= total:
             raise HeadcountError(f"can remove 0 to {total} heads, not {self.remove}")

@@ -12,6 +12,8 @@ from collections.abc import Mapping, Sequence
 
 import numpy as np
 
+from inspector import formatting as fmt
+
 AGREEMENT_THRESHOLD = 0.3
 """Below this Spearman rho a relevance is flagged as disagreeing with occlusion."""
 
@@ -147,14 +149,17 @@ def faithfulness_hints(table: Mapping[str, float | None], occlusion: np.ndarray)
     """
     n_words = len(occlusion)
     if n_words < MIN_WORDS:
-        return [f"only {n_words} word(s): too few to compare rankings; read every relevance with care"]
+        return [
+            f"only {fmt.count(n_words, 'word')}: too few to compare rankings; read every relevance with care"
+        ]
     if all(v is None for v in table.values()):
         return ["leaving out single words does not change this label at all; no ranking can be checked"]
     hints = []
     peak = float(np.abs(occlusion).max())
     if peak < SMALL_DROP:
         hints.append(
-            f"no single word moves this label's probability by {SMALL_DROP} or more (largest {peak:.1e}): "
+            f"no single word moves this label's probability by {fmt.points(SMALL_DROP)} or more "
+            f"(largest {fmt.points(peak, 2)}): "
             "the occlusion ranking rests on tiny differences, so every rho here is weak evidence"
         )
     low = [m for m in ATTENTION_METHODS if table.get(m) is not None and table[m] < AGREEMENT_THRESHOLD]

@@ -14,7 +14,9 @@ from pathlib import Path
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.ticker import FuncFormatter
 
+from inspector import formatting as fmt
 from inspector.corpus.importance import HeadImportance
 from inspector.corpus.pruning import PruningResult
 from inspector.corpus.redundancy import Redundancy
@@ -36,6 +38,10 @@ def _figure(width: float, height: float) -> Figure:
 
 def _caption(fig: Figure, text: str) -> None:
     fig.text(0.01, 0.01, text, fontsize=7.5, ha="left", va="bottom", wrap=True, color="0.25")
+
+
+PERCENT_TICKS = FuncFormatter(lambda value, _pos: fmt.percent(value, 0))
+"""Axis ticks of a fraction, written as whole percentages (``80%``)."""
 
 
 def confusion_figure(evaluation: Evaluation) -> Figure:
@@ -64,17 +70,21 @@ def confusion_figure(evaluation: Evaluation) -> Figure:
                         fontsize=7,
                         color="white" if share[i, j] > 0.5 else "black",
                     )
-    fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03, label="share of the gold row")
-    ax.set_title(f"Accuracy {evaluation.accuracy:.3f}   macro-F1 {evaluation.macro_f1:.3f}", fontsize=10)
-    _caption(fig, f"{evaluation.total} utterances; numbers are counts.")
+    bar = fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03, label="share of the gold row")
+    bar.ax.yaxis.set_major_formatter(PERCENT_TICKS)
+    ax.set_title(
+        f"Accuracy {fmt.percent(evaluation.accuracy)}   macro-F1 {fmt.percent(evaluation.macro_f1)}",
+        fontsize=10,
+    )
+    _caption(fig, f"{fmt.count(evaluation.total, 'utterance')}; numbers are counts.")
     return fig
 
 
-def _head_grid(ax, values: np.ndarray, fmt: str, cmap: str) -> object:
+def _head_grid(ax, values: np.ndarray, decimals: int, cmap: str) -> object:
     layers, heads = values.shape
     im = ax.imshow(values, cmap=cmap, aspect="auto")
-    ax.set_xticks(range(heads))
-    ax.set_yticks(range(layers))
+    ax.set_xticks(range(heads), [fmt.head_tick(h) for h in range(heads)])
+    ax.set_yticks(range(layers), [fmt.layer_name(l) for l in range(layers)])
     ax.set_xlabel("head")
     ax.set_ylabel("layer")
     if layers * heads <= 16 * 16:
@@ -84,7 +94,7 @@ def _head_grid(ax, values: np.ndarray, fmt: str, cmap: str) -> object:
                 ax.text(
                     h,
                     l,
-                    format(values[l, h], fmt),
+                    fmt.weight(values[l, h], decimals),
                     ha="center",
                     va="center",
                     fontsize=7,
@@ -98,12 +108,12 @@ def importance_figure(importance: HeadImportance) -> Figure:
     layers, heads = importance.normalized.shape
     fig = _figure(max(5.0, 0.55 * heads + 2.5), max(3.2, 0.45 * layers + 1.8))
     ax = fig.add_axes((0.1, 0.2, 0.75, 0.7))
-    im = _head_grid(ax, importance.normalized, ".2f", _CMAP_HEADS)
+    im = _head_grid(ax, importance.normalized, 2, _CMAP_HEADS)
     fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03, label="importance (l2-normalised per layer)")
     ax.set_title("Head importance: mean |dL/d gate| over the set", fontsize=10)
     _caption(
         fig,
-        f"Michel et al. (2019) gate-gradient importance, {importance.count} utterances; "
+        f"Michel et al. (2019) gate-gradient importance, {fmt.count(importance.count, 'utterance')}; "
         "layers and heads count from 0.",
     )
     return fig
@@ -119,18 +129,21 @@ def similarity_figure(redundancy: Redundancy) -> Figure:
     off = sim[~np.eye(k, dtype=bool)] if k > 1 else np.ones(1)
     im = ax.imshow(sim, cmap=_CMAP_SIMILARITY, vmin=float(off.min()), vmax=1.0)
     centres = [l * heads + (heads - 1) / 2 for l in range(redundancy.num_layers)]
-    names = [f"L{l}" for l in range(redundancy.num_layers)]
+    names = [fmt.layer_name(l) for l in range(redundancy.num_layers)]
     ax.set_xticks(centres, names)
     ax.set_yticks(centres, names)
     for l in range(1, redundancy.num_layers):
         ax.axhline(l * heads - 0.5, color="white", lw=0.6)
         ax.axvline(l * heads - 0.5, color="white", lw=0.6)
     fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03, label="1 - mean Jensen-Shannon divergence (bits)")
-    ax.set_title(f"Head similarity ({len(redundancy.groups)} near-duplicate group(s))", fontsize=10)
+    ax.set_title(
+        f"Head similarity ({fmt.count(len(redundancy.groups), 'near-duplicate group')})", fontsize=10
+    )
     _caption(
         fig,
-        f"Within each layer block heads run 0..{heads - 1}. Groups: complete linkage at "
-        f"{redundancy.threshold:g} bits; {redundancy.rows_compared} of {redundancy.rows_total} query rows compared.",
+        f"Within each layer block heads run {fmt.head_tick(0)}..{fmt.head_tick(heads - 1)}. Groups: complete "
+        f"linkage at {fmt.bits(redundancy.threshold)}; {redundancy.rows_compared} of "
+        f"{fmt.count(redundancy.rows_total, 'query row')} compared.",
     )
     return fig
 
@@ -148,7 +161,7 @@ def pruning_figure(pruning: PruningResult) -> Figure:
             color="0.4",
             ls="--",
             lw=0.9,
-            label=f"tolerance ({pruning.max_drop:g} below start)",
+            label=f"tolerance ({fmt.points(pruning.max_drop)} below the start)",
         )
     total = len(pruning.curves[0].order)
     if pruning.accuracy_after is not None:
@@ -159,10 +172,12 @@ def pruning_figure(pruning: PruningResult) -> Figure:
             ms=12,
             color="crimson",
             ls="none",
-            label=f"exported: {len(pruning.removed)} head(s) ({pruning.mask_order})",
+            label=f"exported: {fmt.count(len(pruning.removed), 'head')} ({pruning.mask_order})",
         )
-    ax.set_xlabel("fraction of heads switched off")
+    ax.set_xlabel("share of heads switched off")
     ax.set_ylabel("accuracy")
+    ax.xaxis.set_major_formatter(PERCENT_TICKS)
+    ax.yaxis.set_major_formatter(PERCENT_TICKS)
     ax.set_xlim(0, 1)
     ax.set_ylim(0, 1.02)
     ax.grid(alpha=0.3)
@@ -171,8 +186,12 @@ def pruning_figure(pruning: PruningResult) -> Figure:
     n = pruning.curves[0].utterances
     _caption(
         fig,
-        f"{pruning.caution} Heads switched off by gates on {n} utterances"
-        + (f", measured every {pruning.every} heads." if pruning.every > 1 else ", one head per step."),
+        f"{pruning.caution} Heads switched off by gates on {fmt.count(n, 'utterance')}"
+        + (
+            f", measured every {fmt.count(pruning.every, 'head')}."
+            if pruning.every > 1
+            else ", one head per step."
+        ),
     )
     return fig
 
@@ -180,9 +199,9 @@ def pruning_figure(pruning: PruningResult) -> Figure:
 def save_figure(fig: Figure, stem: Path) -> list[Path]:
     """Write ``stem.png`` and ``stem.svg`` atomically; returns the paths."""
     paths = []
-    for fmt in FIGURE_FORMATS:
+    for kind in FIGURE_FORMATS:
         buf = io.BytesIO()
-        fig.savefig(buf, format=fmt, bbox_inches="tight", pad_inches=0.15)
+        fig.savefig(buf, format=kind, bbox_inches="tight", pad_inches=0.15)
         data = buf.getvalue()
-        paths.append(atomic_write(stem.with_suffix(f".{fmt}"), lambda fh, d=data: fh.write(d)))
+        paths.append(atomic_write(stem.with_suffix(f".{kind}"), lambda fh, d=data: fh.write(d)))
     return paths

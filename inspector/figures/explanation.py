@@ -14,6 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
+from inspector import formatting as fmt
 from inspector.errors import HeadcountError
 from inspector.explanation.explain import CAUTION, RULE_NAMES, SentenceExplanation
 from inspector.explanation.faithfulness import METHOD_LABELS
@@ -31,10 +32,10 @@ HEADS_CMAP = "coolwarm"
 
 def check_figure_path(path: Path) -> str:
     """Return the figure format from the file suffix, or raise a one-line error."""
-    fmt = Path(path).suffix.lower().lstrip(".")
-    if fmt not in FIGURE_FORMATS:
+    kind = Path(path).suffix.lower().lstrip(".")
+    if kind not in FIGURE_FORMATS:
         raise HeadcountError(f"{path}: figure must end in .png, .svg or .pdf")
-    return fmt
+    return kind
 
 
 def scale_rows(rows: np.ndarray) -> np.ndarray:
@@ -54,7 +55,7 @@ def _strip(ax, ex: SentenceExplanation, label: str, *, title: str) -> object:
     rows = []
     for n in names:
         rho = ev.faithfulness.get(n)
-        suffix = "" if n == "occlusion" else ("  rho n/a" if rho is None else f"  rho {rho:+.2f}")
+        suffix = "" if n == "occlusion" else f"  rho {fmt.correlation(rho)}"
         rows.append(ROW_NAMES[n] + suffix)
     ax.set_yticks(range(len(names)), rows, fontsize=8)
     ax.set_title(title, fontsize=9, loc="left")
@@ -63,7 +64,7 @@ def _strip(ax, ex: SentenceExplanation, label: str, *, title: str) -> object:
 
 def _label_title(ex: SentenceExplanation, label: str, which: str) -> str:
     ev = ex.evidence(label)
-    return f"{which}{label} ({'/'.join(ev.roles)}, p={ev.probability:.3f})"
+    return f"{which}{label} ({'/'.join(ev.roles)}, p={fmt.percent(ev.probability)})"
 
 
 def _caption(sentences: list[SentenceExplanation], width: float) -> str:
@@ -77,8 +78,8 @@ def _caption(sentences: list[SentenceExplanation], width: float) -> str:
     )
     text = (
         f"Model {ex.model_name}. Each row is scaled to its largest magnitude; orange pushes toward the label, "
-        f"purple away; the two rollout rows do not depend on the label. Integrated Gradients on word embeddings: baseline '{ig.baseline}', {ig.steps} steps, "
-        f"{RULE_NAMES[ig.rule]}, largest completeness error {worst:.1e} (logit units). Occlusion: drop of the label's probability with {occ}. rho: Spearman rank "
+        f"purple away; the two rollout rows do not depend on the label. Integrated Gradients on word embeddings: baseline '{ig.baseline}', {fmt.count(ig.steps, 'step')}, "
+        f"{RULE_NAMES[ig.rule]}, largest completeness error {fmt.number(worst, 2)} (logit units). Occlusion: drop of the label's probability with {occ}. rho: Spearman rank "
         f"correlation with occlusion over words. {CAUTION}"
     )
     return "\n".join(textwrap.wrap(text, int(width * 15)))
@@ -122,14 +123,14 @@ def _heads_panel(ax, cmp: WhatIfComparison) -> None:
     image = ax.imshow(diff, cmap=HEADS_CMAP, vmin=-bound, vmax=bound, aspect="auto", interpolation="nearest")
     ax.set_xlabel("head", fontsize=8)
     ax.set_ylabel("layer", fontsize=8)
-    ax.set_xticks(range(diff.shape[1]))
-    ax.set_yticks(range(diff.shape[0]))
+    ax.set_xticks(range(diff.shape[1]), [fmt.head_tick(h) for h in range(diff.shape[1])])
+    ax.set_yticks(range(diff.shape[0]), [fmt.layer_name(l) for l in range(diff.shape[0])])
     ax.tick_params(labelsize=7)
     for h in cmp.top_heads:
         ax.add_patch(_outline(h.head, h.layer))
     ax.set_title(
         f"change in {METRIC_LABELS[cmp.metric].lower()} per head (edited - original); "
-        f"outlined: the {len(cmp.top_heads)} largest changes",
+        f"outlined: the largest {fmt.count(len(cmp.top_heads), 'change')}",
         fontsize=9,
         loc="left",
     )
@@ -146,6 +147,6 @@ def save_explanation_figure(
     path: Path, ex: SentenceExplanation, comparison: WhatIfComparison | None = None
 ) -> Path:
     """Render :func:`explanation_figure` to ``path`` (.png, .svg or .pdf), atomically."""
-    fmt = check_figure_path(path)
+    kind = check_figure_path(path)
     fig = explanation_figure(ex, comparison)
-    return atomic_write(Path(path), lambda fh: fig.savefig(fh, format=fmt, dpi=130))
+    return atomic_write(Path(path), lambda fh: fig.savefig(fh, format=kind, dpi=130))

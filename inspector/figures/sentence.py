@@ -24,6 +24,7 @@ from matplotlib.figure import Figure
 from matplotlib.patches import PathPatch, Rectangle
 from matplotlib.path import Path as MplPath
 
+from inspector import formatting as fmt
 from inspector.errors import HeadcountError
 from inspector.figures.files import atomic_write, save_csv
 
@@ -155,14 +156,14 @@ def draw_mosaic(
             ax.text(
                 head * px + m - 0.5,
                 layer * py + m + (py - m) * 0.42 - 0.5,
-                f"{metric[layer, head]:.2f}",
+                fmt.weight(metric[layer, head], 2),
                 ha="right",
                 va="center",
                 fontsize=number_size,
                 color="#333333",
             )
-    ax.set_xticks(np.arange(H) * px + m / 2 - 0.5, [f"H{h}" for h in range(H)], fontsize=fontsize)
-    ax.set_yticks(np.arange(L) * py + m / 2 - 0.5, [f"L{l}" for l in range(L)], fontsize=fontsize)
+    ax.set_xticks(np.arange(H) * px + m / 2 - 0.5, [fmt.head_tick(h) for h in range(H)], fontsize=fontsize)
+    ax.set_yticks(np.arange(L) * py + m / 2 - 0.5, [fmt.layer_name(l) for l in range(L)], fontsize=fontsize)
     ax.xaxis.tick_top()
     ax.tick_params(length=0, pad=2)
     for spine in ax.spines.values():
@@ -225,7 +226,7 @@ def draw_relevance(
         ax.text(
             x + w / 2,
             y - 0.85,
-            f"{value:.3f}",
+            fmt.weight(value),
             ha="center",
             va="center",
             fontsize=fontsize * 0.62,
@@ -463,18 +464,18 @@ def relevance_table(values: np.ndarray, labels: Sequence[str]) -> Table:
 
 # -- writing ---------------------------------------------------------------------------------------
 def figure_format(path: Path) -> str:
-    fmt = FORMATS.get(Path(path).suffix.lower())
-    if fmt is None:
+    kind = FORMATS.get(Path(path).suffix.lower())
+    if kind is None:
         raise HeadcountError(f"{path}: unknown figure format (use {', '.join(FORMATS)})")
-    return fmt
+    return kind
 
 
 def save_figure(fig: Figure, path: Path) -> Path:
     """Write ``fig`` as PNG, SVG or PDF (by suffix), atomically; text stays text in SVG and PDF."""
-    fmt = figure_format(path)
+    kind = figure_format(path)
     with rc_context({"svg.fonttype": "none", "pdf.fonttype": 42}):
         return atomic_write(
-            Path(path), lambda fh: fig.savefig(fh, format=fmt, dpi=PNG_DPI, facecolor="white")
+            Path(path), lambda fh: fig.savefig(fh, format=kind, dpi=PNG_DPI, facecolor="white")
         )
 
 

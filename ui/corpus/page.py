@@ -45,6 +45,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
 from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
 from inspector.corpus.report import write_report
@@ -203,16 +204,18 @@ class CorpusPage(QWidget):
         self.tolerance.setDecimals(1)
         self.tolerance.setSingleStep(0.5)
         self.tolerance.setValue(100 * defaults.max_drop)
-        self.tolerance.setSuffix(" pts")
         self.tolerance.setAccessibleName("Accuracy tolerance")
+        self.tolerance.valueChanged.connect(self._units)
         self.tolerance.setToolTip(
-            "The exported set removes the most heads whose removal never cost more accuracy"
+            "The exported set removes the most heads whose removal never cost more accuracy, in percentage "
+            f"points ({fmt.points(0.01)} = a tolerance of 0.01 on the command line's --max-drop)"
         )
         self.every = QSpinBox(box)
         self.every.setRange(1, 64)
         self.every.setValue(defaults.prune_every)
-        self.every.setSuffix(" head(s)")
         self.every.setAccessibleName("Measure accuracy every")
+        self.every.valueChanged.connect(self._units)
+        self._units()
         self.run_button = QPushButton("&Run", box)
         self.run_button.setDefault(True)
         self.run_button.clicked.connect(self.run)
@@ -273,6 +276,14 @@ class CorpusPage(QWidget):
         grid.addLayout(second, 1, 0)
         grid.addLayout(third, 2, 0)
         return box
+
+    def _units(self, _value: object = None) -> None:
+        """The spin boxes' units agree with their numbers (``1.0 point``, ``2 heads``), as the formatter says."""
+        for box, shown in (
+            (self.tolerance, fmt.points(self.tolerance.value() / 100)),
+            (self.every, fmt.count(self.every.value(), "head")),
+        ):
+            box.setSuffix(" " + shown.split(" ", 1)[1])
 
     def _evaluation_tab(self) -> QWidget:
         tab = QWidget(self)
@@ -484,7 +495,7 @@ class CorpusPage(QWidget):
         if run == self._run and not self._stop.is_set():
             self.progress.setRange(0, max(total, 1))
             self.progress.setValue(done)
-            self.progress.setFormat("%v of %m batches")
+            self.progress.setFormat(f"%v of {fmt.count(total, 'batch', 'batches')}")
 
     def _phase(self, run: int, name: str) -> None:
         if run == self._run and not self._stop.is_set():
@@ -501,7 +512,7 @@ class CorpusPage(QWidget):
             return
         assert isinstance(result, CorpusReport)
         self.show_report(result)
-        self.phase_label.setText(f"Done: {len(result.data)} utterances")
+        self.phase_label.setText(f"Done: {fmt.count(len(result.data), 'utterance')}")
         self.status.emit(f"Corpus analysis of {Path(result.data.path).name} done")
         self.finished.emit("done")
 
@@ -567,8 +578,8 @@ class CorpusPage(QWidget):
         def describe(r: int, c: int) -> str:
             what = "correct" if r == c else "misfire"
             return (
-                f"expected {ev.labels[r]}, predicted {ev.labels[c]}: {int(counts[r, c])} utterance(s) "
-                f"({100 * shares[r, c]:.1f}% of {int(counts[r].sum())} {ev.labels[r]}) \u2014 {what}"
+                f"expected {ev.labels[r]}, predicted {ev.labels[c]}: {fmt.count(counts[r, c], 'utterance')} "
+                f"({fmt.percent(shares[r, c])} of {int(counts[r].sum())} {ev.labels[r]}) \u2014 {what}"
             )
 
         n = len(ev.labels)
@@ -591,7 +602,11 @@ class CorpusPage(QWidget):
                 _cell(m.text, tip=m.text),
                 _cell(m.expected),
                 _cell(m.predicted),
-                _cell(f"{m.confidence:.3f}", True, f"expected label got {m.expected_probability:.3f}"),
+                _cell(
+                    fmt.percent(m.confidence),
+                    True,
+                    f"probability of the predicted label; the expected label got {fmt.percent(m.expected_probability)}",
+                ),
             )
             for c, item in enumerate(cells):
                 self.misfires.setItem(r, c, item)
@@ -601,7 +616,7 @@ class CorpusPage(QWidget):
             button.clicked.connect(lambda _c=False, row=r: self.explain_misfire(row))
             self.misfires.setCellWidget(r, EXPLAIN_COLUMN, button)
         self.misfire_panel.set_subtitle(
-            f"{len(misfires)} \u00b7 click (or Enter) opens one in the sentence view \u00b7 "
+            f"{fmt.count(len(misfires), 'misfire')} \u00b7 click (or Enter) opens one in the sentence view \u00b7 "
             "Explain (or Ctrl+Enter) on the Explain page"
         )
 
@@ -614,12 +629,12 @@ class CorpusPage(QWidget):
             values = imp.normalized
             self.importance_map.set_data(
                 values,
-                [f"L{l}" for l in range(layers)],
-                [f"H{h}" for h in range(heads)],
-                texts=[[f"{v:.2f}" for v in row] for row in values],
+                [fmt.layer_name(l) for l in range(layers)],
+                [fmt.head_tick(h) for h in range(heads)],
+                texts=[[fmt.weight(v, 2) for v in row] for row in values],
                 describe=lambda l, h: (
-                    f"layer {l}, head {h}: importance {values[l, h]:.4f} "
-                    f"(raw {imp.raw[l, h]:.4g}, normalised within the layer)"
+                    f"{fmt.head_name(l, h)}: importance {fmt.weight(values[l, h])} "
+                    f"(raw {fmt.number(imp.raw[l, h])}, normalised within the layer)"
                 ),
             )
         red = report.redundancy
@@ -640,7 +655,8 @@ class CorpusPage(QWidget):
             block=heads,
             marked={(i, j) for i, j in members if i != j and i in grouped},
             describe=lambda i, j: (
-                f"{names[i]} vs {names[j]}: mean JS divergence {red.js[i, j]:.4f} bits (similarity {1 - red.js[i, j]:.4f})"
+                f"{names[i]} vs {names[j]}: mean JS divergence {fmt.bits(red.js[i, j])} "
+                f"(similarity {fmt.weight(1 - red.js[i, j])})"
             ),
         )
         self.groups.setText(groups_html(report))
@@ -684,7 +700,7 @@ class CorpusPage(QWidget):
 
         def done(written: object) -> None:
             count = sum(len(paths) for paths in written.values())
-            self.status.emit(f"Wrote {count} corpus report files in {folder}")
+            self.status.emit(f"Wrote the corpus report ({fmt.count(count, 'file')}) in {folder}")
 
         return self.runner.submit(
             "export",
@@ -706,5 +722,7 @@ class CorpusPage(QWidget):
     def save_mask(self, path: Path) -> Path:
         """Write the chosen heads to ``path`` atomically as ``{"layer": [head, ...]}``."""
         written = save_json(path, self.report.pruning.mask)
-        self.status.emit(f"Saved the prune mask ({len(self.report.pruning.removed)} heads) to {path}")
+        self.status.emit(
+            f"Saved the prune mask ({fmt.count(len(self.report.pruning.removed), 'head')}) to {path}"
+        )
         return written

@@ -12,6 +12,7 @@ from PySide6.QtCore import QPointF, QRectF, QSize, Qt
 from PySide6.QtGui import QColor, QPainterPath, QPalette, QPen
 from PySide6.QtWidgets import QWidget
 
+from inspector import formatting as fmt
 from inspector.corpus.pruning import PruningResult
 from ui.widgets.colormap import accent, dim_text
 from ui.widgets.hover_view import HoverView
@@ -94,13 +95,32 @@ class PruningPlot(HoverView):
         curve = self.result.curves[hit[0]]
         k = hit[1]
         removed = curve.steps[k]
-        last = (
-            f"; last removed L{curve.order[removed - 1][0]}H{curve.order[removed - 1][1]}" if removed else ""
-        )
+        last = f"; last removed {fmt.head_name(*curve.order[removed - 1])}" if removed else ""
         return (
-            f"{curve.order_name} order: {removed} of {len(curve.order)} heads removed "
-            f"({curve.fractions[k]:.0%}), accuracy {100 * curve.accuracy[k]:.1f}%{last}"
+            f"{curve.order_name} order: {removed} of {fmt.count(len(curve.order), 'head')} removed "
+            f"({fmt.percent(curve.fractions[k])}), accuracy {fmt.percent(curve.accuracy[k])}{last}"
         )
+
+    def tick_texts(self) -> tuple[list[str], list[str]]:
+        """The accuracy ticks (left) and the share-of-heads ticks (bottom), in sixths of the axes."""
+        return (
+            [fmt.percent(k / 5 * self.top, 0) for k in range(6)],
+            [fmt.percent(k / 5, 0) for k in range(6)],
+        )
+
+    def axis_texts(self) -> tuple[str, str]:
+        """The bottom axis title and the left axis title."""
+        return f"share of the {fmt.count(self.total, 'head')} switched off", "accuracy"
+
+    def chosen_text(self) -> str:
+        return f"chosen: {fmt.count(len(self.result.removed), 'head')}"
+
+    def drawn_text(self) -> list[str]:
+        if self.result is None:
+            return [self.placeholder()]
+        left, bottom = self.tick_texts()
+        names = [c.order_name for c in self.result.curves]
+        return [*left, *bottom, *self.axis_texts(), self.chosen_text(), *names]
 
     # -- painting --------------------------------------------------------------------------------
     def paintEvent(self, _event: object) -> None:
@@ -114,8 +134,9 @@ class PruningPlot(HoverView):
         fm = self.fontMetrics()
         grid = dim_text(pal, 0.18)
         p.setPen(dim_text(pal, 0.85))
+        left_ticks, bottom_ticks = self.tick_texts()
         for k in range(6):
-            v, tick = k / 5, k * 20
+            v = k / 5
             y = self.point(0, v * self.top).y()
             x = self.point(v, 0).x()
             p.setPen(QPen(grid, 1))
@@ -125,20 +146,23 @@ class PruningPlot(HoverView):
             p.drawText(
                 QRectF(0, y - 8, PAD_LEFT - 6, 16),
                 Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
-                f"{100 * v * self.top:.0f}%",
+                left_ticks[k],
             )
             p.drawText(
-                QRectF(x - 30, r.bottom() + 2, 60, fm.height()), Qt.AlignmentFlag.AlignHCenter, f"{tick}%"
+                QRectF(x - 30, r.bottom() + 2, 60, fm.height()),
+                Qt.AlignmentFlag.AlignHCenter,
+                bottom_ticks[k],
             )
+        bottom_title, left_title = self.axis_texts()
         p.drawText(
             QRectF(r.left(), r.bottom() + fm.height() + 2, r.width(), fm.height()),
             Qt.AlignmentFlag.AlignHCenter,
-            f"fraction of the {self.total} heads switched off",
+            bottom_title,
         )
         p.drawText(
             QRectF(r.left(), 2, r.width(), PAD_TOP - 4),
             Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter,
-            "accuracy",
+            left_title,
         )
         p.setPen(QPen(ink, 1))
         p.drawLine(r.bottomLeft(), r.bottomRight())
@@ -149,7 +173,7 @@ class PruningPlot(HoverView):
         x = self.point(chosen, 0).x()
         p.drawLine(QPointF(x, r.top()), QPointF(x, r.bottom()))
         p.setPen(mark)
-        label = f"chosen: {len(self.result.removed)} heads"
+        label = self.chosen_text()
         lx = min(x + 4, r.right() - fm.horizontalAdvance(label))
         p.drawText(QPointF(lx, r.top() + fm.ascent()), label)
         for i, curve in enumerate(self.result.curves):

@@ -15,6 +15,7 @@ from pathlib import Path
 
 import numpy as np
 
+from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
 from inspector.corpus.dataset import LabelledSet, read_labelled
 from inspector.corpus.run import CorpusReport, StopCheck, run_corpus
@@ -88,34 +89,34 @@ def compute_corpus(
 # ----------------------------------------------------------------------------- text for the page
 
 
-def percent(value: float | None) -> str:
-    return "n/a" if value is None else f"{100 * value:.1f}%"
-
-
 def summary_html(report: CorpusReport) -> str:
     """The headline: accuracy, macro-F1, counts."""
     ev = report.evaluation
     return (
-        f"<span style='font-size:15pt'><b>{percent(ev.accuracy)}</b></span> accuracy &nbsp; "
-        f"<span style='font-size:15pt'><b>{ev.macro_f1:.3f}</b></span> macro-F1 &nbsp; "
-        f"on {ev.total} utterances \u00b7 {len(ev.misfires)} misfire(s)"
+        f"<span style='font-size:15pt'><b>{fmt.percent(ev.accuracy)}</b></span> accuracy &nbsp; "
+        f"<span style='font-size:15pt'><b>{fmt.percent(ev.macro_f1)}</b></span> macro-F1 &nbsp; "
+        f"on {fmt.count(ev.total, 'utterance')} \u00b7 {fmt.count(len(ev.misfires), 'misfire')}"
     )
 
 
 def data_report_html(data: LabelledSet) -> str:
     """Which file was read, and what was left out of it (bad rows by line number, unknown labels)."""
-    lines = [f"<b>{html.escape(Path(data.path).name)}</b>: {len(data)} utterances used"]
+    lines = [f"<b>{html.escape(Path(data.path).name)}</b>: {fmt.count(len(data), 'utterance')} used"]
     if data.bad_rows:
         shown = "".join(
             f"<li>line {b.row}: {html.escape(b.reason)}</li>" for b in data.bad_rows[:SHOWN_BAD_ROWS]
         )
         more = len(data.bad_rows) - SHOWN_BAD_ROWS
         tail = f"<li>\u2026 and {more} more (all are in summary.json)</li>" if more > 0 else ""
-        lines.append(f"{len(data.bad_rows)} bad row(s) skipped:<ul style='margin:0'>{shown}{tail}</ul>")
+        lines.append(
+            f"{fmt.count(len(data.bad_rows), 'bad row')} skipped:<ul style='margin:0'>{shown}{tail}</ul>"
+        )
     else:
         lines.append("no bad rows")
     if data.unknown_labels:
-        listed = ", ".join(f"\u2018{html.escape(k)}\u2019 ({v} rows)" for k, v in data.unknown_labels.items())
+        listed = ", ".join(
+            f"\u2018{html.escape(k)}\u2019 ({fmt.count(v, 'row')})" for k, v in data.unknown_labels.items()
+        )
         lines.append(f"labels the model does not know: {listed}")
     return "<br>".join(lines)
 
@@ -123,7 +124,7 @@ def data_report_html(data: LabelledSet) -> str:
 def intent_rows(report: CorpusReport) -> list[tuple[str, str, str, str, str]]:
     """(label, precision, recall, F1, support) per intent, as shown."""
     return [
-        (s.label, f"{s.precision:.3f}", f"{s.recall:.3f}", f"{s.f1:.3f}", str(s.support))
+        (s.label, fmt.percent(s.precision), fmt.percent(s.recall), fmt.percent(s.f1), str(s.support))
         for s in report.evaluation.per_intent
     ]
 
@@ -137,25 +138,27 @@ def confusion_shares(confusion: np.ndarray) -> np.ndarray:
 
 def head_names(num_layers: int, num_heads: int) -> list[str]:
     """``L0H0, L0H1, ...`` in the flat order of the redundancy matrix (layer * heads + head)."""
-    return [f"L{l}H{h}" for l in range(num_layers) for h in range(num_heads)]
+    return [fmt.head_name(l, h) for l in range(num_layers) for h in range(num_heads)]
 
 
 def groups_html(report: CorpusReport) -> str:
     """The near-duplicate groups and the closest pairs."""
     red = report.redundancy
     if red.groups:
-        items = "".join("<li>" + ", ".join(f"L{l} H{h}" for l, h in g) + "</li>" for g in red.groups)
-        groups = f"<b>{len(red.groups)} near-duplicate group(s)</b><ul style='margin:0'>{items}</ul>"
+        items = "".join("<li>" + ", ".join(fmt.head_name(l, h) for l, h in g) + "</li>" for g in red.groups)
+        groups = (
+            f"<b>{fmt.count(len(red.groups), 'near-duplicate group')}</b><ul style='margin:0'>{items}</ul>"
+        )
     else:
         groups = "<b>No near-duplicate group</b>"
     pairs = "".join(
-        f"<tr><td>L{p.layer_a} H{p.head_a} \u2013 L{p.layer_b} H{p.head_b}</td>"
-        f"<td align=right>&nbsp;{p.js_divergence:.3f}</td></tr>"
+        f"<tr><td>{fmt.head_name(p.layer_a, p.head_a)} \u2013 {fmt.head_name(p.layer_b, p.head_b)}</td>"
+        f"<td align=right>&nbsp;{fmt.bits(p.js_divergence)}</td></tr>"
         for p in red.pairs()[:5]
     )
     return (
-        f"{groups}<span>every pair in a group within {red.threshold:g} bits of mean JS divergence</span>"
-        f"<br><br><b>Closest pairs</b> (bits)<table cellspacing=1>{pairs}</table>"
+        f"{groups}<span>every pair in a group within {fmt.bits(red.threshold)} of mean JS divergence</span>"
+        f"<br><br><b>Closest pairs</b> (mean JS divergence)<table cellspacing=1>{pairs}</table>"
     )
 
 
@@ -165,10 +168,10 @@ def mask_text(report: CorpusReport) -> str:
     if pr is None:
         return "No pruning simulated (choose at least one order)."
     total = report.num_layers * report.num_heads
-    rule = f"tolerance {100 * pr.max_drop:.1f} pts" if pr.max_drop is not None else "fixed count"
-    heads = ", ".join(f"L{l}H{h}" for l, h in sorted(pr.removed)) or "none"
+    rule = f"tolerance {fmt.points(pr.max_drop)}" if pr.max_drop is not None else "fixed count"
+    heads = ", ".join(fmt.head_name(l, h) for l, h in sorted(pr.removed)) or "none"
     return (
-        f"Chosen from the \u2018{pr.mask_order}\u2019 order ({rule}): remove {len(pr.removed)} of {total} heads "
-        f"({len(pr.removed) / total:.0%}); accuracy {percent(pr.accuracy_before)} \u2192 "
-        f"{percent(pr.accuracy_after)}. Heads: {heads}"
+        f"Chosen from the \u2018{pr.mask_order}\u2019 order ({rule}): remove {len(pr.removed)} of "
+        f"{fmt.count(total, 'head')} ({fmt.percent(len(pr.removed) / total)}); accuracy "
+        f"{fmt.percent(pr.accuracy_before)} \u2192 {fmt.percent(pr.accuracy_after)}. Heads: {heads}"
     )

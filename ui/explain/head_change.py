@@ -12,10 +12,11 @@ from PySide6.QtCore import QRectF, QSize, Qt
 from PySide6.QtGui import QFont, QPalette, QPen
 from PySide6.QtWidgets import QWidget
 
+from inspector import formatting as fmt
 from inspector.explanation.whatif import HeadChange
 from ui.widgets.colormap import accent, dim_text, readable_text_on
 from ui.widgets.hover_view import HoverView
-from ui.widgets.signed import blend, number_text, signed_colour
+from ui.widgets.signed import blend, signed_colour
 
 MARGIN, MAX_CELL_W, MAX_CELL_H, MIN_SHADE = 4, 64, 30, 0.12
 
@@ -46,7 +47,7 @@ class HeadChangeMap(HoverView):
     # -- geometry --------------------------------------------------------------------------------
     def _origin(self) -> tuple[float, float]:
         fm = self.fontMetrics()
-        return MARGIN + fm.horizontalAdvance("L00") + 6, MARGIN + fm.height() + 2
+        return MARGIN + fm.horizontalAdvance(fmt.layer_name(10)) + 6, MARGIN + fm.height() + 2
 
     def _cell_size(self) -> tuple[float, float]:
         layers, heads = self.before.shape
@@ -78,7 +79,22 @@ class HeadChangeMap(HoverView):
     def hover_text(self, hit: tuple[int, int]) -> str:
         layer, head = hit
         b, a = float(self.before[layer, head]), float(self.after[layer, head])
-        return f"layer {layer}, head {head}: {b:.4f} \u2192 {a:.4f} ({a - b:+.4f})"
+        return f"{fmt.head_name(layer, head)}: {fmt.weight(b)} \u2192 {fmt.weight(a)} ({fmt.signed(a - b)})"
+
+    def cell_texts(self) -> list[list[str]]:
+        """The signed change printed in each cell, [layer][head], one number of decimals for the whole map."""
+        diff = self.difference
+        flat = fmt.column(diff.ravel(), 2, sign=True)
+        heads = diff.shape[1]
+        return [flat[i : i + heads] for i in range(0, len(flat), heads)]
+
+    def drawn_text(self) -> list[str]:
+        diff = self.difference
+        if diff is None:
+            return [self.placeholder()]
+        layers, heads = diff.shape
+        ticks = [fmt.head_tick(h) for h in range(heads)] + [fmt.layer_name(l) for l in range(layers)]
+        return ticks + [text for row in self.cell_texts() for text in row]
 
     # -- painting --------------------------------------------------------------------------------
     def paintEvent(self, _event: object) -> None:
@@ -96,19 +112,22 @@ class HeadChangeMap(HoverView):
         p.setPen(dim_text(pal, 0.8))
         for head in range(heads):
             p.drawText(
-                QRectF(x0 + head * w, MARGIN, w, fm.height()), Qt.AlignmentFlag.AlignCenter, f"H{head}"
+                QRectF(x0 + head * w, MARGIN, w, fm.height()),
+                Qt.AlignmentFlag.AlignCenter,
+                fmt.head_tick(head),
             )
         for layer in range(layers):
             p.drawText(
                 QRectF(MARGIN, y0 + layer * h, x0 - MARGIN - 6, h),
                 Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
-                f"L{layer}",
+                fmt.layer_name(layer),
             )
         small = QFont(self.font())
         small.setPointSizeF(self.font().pointSizeF() * 0.82)
         p.setFont(small)
         small_fm = p.fontMetrics()
         framed = {(c.layer, c.head) for c in self.top}
+        texts = self.cell_texts()
         for layer in range(layers):
             for head in range(heads):
                 value = float(diff[layer, head])
@@ -118,7 +137,7 @@ class HeadChangeMap(HoverView):
                     base, signed_colour(pal, value), MIN_SHADE + (1 - MIN_SHADE) * share if value else 0
                 )
                 p.fillRect(cell, colour)
-                text = number_text(value, "+.2g")
+                text = texts[layer][head]
                 if (
                     small_fm.horizontalAdvance(text) + 4 <= cell.width()
                     and small_fm.height() <= cell.height()

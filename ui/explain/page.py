@@ -29,6 +29,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
 from inspector.errors import HeadcountError
 from inspector.explanation.explain import CAUTION, require_classifier
@@ -339,7 +340,7 @@ class ExplainPage(QWidget):
         self.state.set_result(result)
         sentences = [result.explanation] + ([result.comparison.edited] if result.comparison else [])
         seconds = sum(s.timings.get("total", 0.0) for s in sentences)
-        self.status.emit(f"Explained in {seconds:.2f} s")
+        self.status.emit(f"Explained in {fmt.duration(seconds)}")
         self.refresh()
 
     def _failed(self, text: str) -> None:

@@ -23,11 +23,12 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from inspector import formatting as fmt
 from inspector.explanation.faithfulness import AGREEMENT_THRESHOLD, METHOD_LABELS
 from inspector.explanation.whatif import WhatIfComparison
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
 from ui.explain.head_change import HeadChangeMap
-from ui.explain.state import AgreementTable, MethodColumn, disagrees, format_rho
+from ui.explain.state import AgreementTable, MethodColumn, disagrees
 from ui.explain.word_bars import EvidenceTable
 from ui.widgets.colormap import accent, dim_text
 from ui.widgets.panel import Panel, column
@@ -169,7 +170,7 @@ class AgreementPanel(ExplainPanel):
                 grid.verticalHeaderItem(r).setFont(bold)
             for c, value in enumerate(table.values[r]):
                 low = disagrees(value)
-                item = QTableWidgetItem(format_rho(value) + (" \u2715" if low else ""))
+                item = QTableWidgetItem(fmt.correlation(value) + (" \u2715" if low else ""))
                 item.setTextAlignment(Qt.AlignmentFlag.AlignCenter)
                 if low:
                     item.setForeground(colour)
@@ -181,7 +182,7 @@ class AgreementPanel(ExplainPanel):
                 grid.setItem(r, c, item)
         grid.resizeRowsToContents()
         self.set_subtitle(
-            f"Spearman \u03c1 against occlusion over {words} words \u00b7 \u2715 below {AGREEMENT_THRESHOLD}"
+            f"Spearman \u03c1 against occlusion over {fmt.count(words, 'word')} \u00b7 \u2715 below {AGREEMENT_THRESHOLD}"
         )
 
 
@@ -223,8 +224,9 @@ class HeadsPanel(ExplainPanel):
         self.map.setToolTip(f"{METRIC_LABELS[cmp.metric]}: edited minus original sentence, per head")
         self.set_subtitle("edited \u2212 original")
         rows = "".join(
-            f"<tr><td>L{h.layer} H{h.head}</td><td align=right>&nbsp;{h.before:.3f} \u2192 {h.after:.3f}</td>"
-            f"<td align=right>&nbsp;<b>{h.change:+.3f}</b></td></tr>"
+            f"<tr><td>{fmt.head_name(h.layer, h.head)}</td>"
+            f"<td align=right>&nbsp;{fmt.weight(h.before)} \u2192 {fmt.weight(h.after)}</td>"
+            f"<td align=right>&nbsp;<b>{fmt.signed(h.change)}</b></td></tr>"
             for h in cmp.top_heads
         )
         self.list.setText(f"<b>Changed most</b> (framed)<table cellspacing=2>{rows}</table>")

@@ -16,6 +16,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
 from inspector.explanation.explain import RULE_NAMES, LabelEvidence, SentenceExplanation, explain_sentence
 from inspector.explanation.faithfulness import AGREEMENT_THRESHOLD, METHOD_LABELS
@@ -152,6 +153,10 @@ class MethodColumn:
     """A second header line (the rho, or how occlusion was done)."""
     tip: str
 
+    def texts(self) -> list[str]:
+        """Each word's value as printed: one number of decimals for the lane, signed lanes with their sign."""
+        return fmt.column(self.values, sign=self.signed)
+
 
 @dataclass
 class AgreementTable:
@@ -167,10 +172,6 @@ class AgreementTable:
     """Row headers."""
     values: list[list[float | None]]
     """[row][method] rho or None."""
-
-
-def format_rho(rho: float | None) -> str:
-    return "n/a" if rho is None else f"{rho:+.2f}"
 
 
 def disagrees(rho: float | None) -> bool:
@@ -270,8 +271,8 @@ class ExplainState:
             if method == "occlusion":
                 note, tip = self.occlusion_short(s), self.occlusion_caption(s)
             else:
-                note = f"\u03c1 {format_rho(rho)}"
-                tip = f"{METHOD_LABELS[method]}; Spearman \u03c1 against occlusion {format_rho(rho)}"
+                note = f"\u03c1 {fmt.correlation(rho)}"
+                tip = f"{METHOD_LABELS[method]}; Spearman \u03c1 against occlusion {fmt.correlation(rho)}"
                 if method in LABEL_INDEPENDENT:
                     tip += " (the same for every label)"
             out.append(
@@ -306,8 +307,8 @@ class ExplainState:
         baseline = BASELINE_TEXT.get(ig.baseline, ig.baseline)
         return (
             f"Integrated Gradients (logit of {ev.label}): baseline \u2018{ig.baseline}\u2019 ({baseline}), "
-            f"{ig.steps} steps, {RULE_NAMES[ig.rule]}; completeness error {ig.completeness_error:+.1e} "
-            f"on a logit gap of {ig.logit_difference:+.3f}"
+            f"{fmt.count(ig.steps, 'step')}, {RULE_NAMES[ig.rule]}; completeness error "
+            f"{fmt.number(ig.completeness_error, 2, sign=True)} on a logit gap of {fmt.signed(ig.logit_difference)}"
         )
 
     @staticmethod
@@ -333,21 +334,22 @@ class ExplainState:
         if s is None:
             return ""
         p = s.prediction
-        line = f"<b>{html.escape(p.label)}</b> {100 * p.probabilities[p.label]:.1f}%"
+        line = f"<b>{html.escape(p.label)}</b> {fmt.percent(p.probabilities[p.label])}"
         if s.expected is not None and s.expected != p.label:
-            share = 100 * p.probabilities[s.expected]
+            share = fmt.percent(p.probabilities[s.expected])
             misfire = f"<span style='color:{mark}'>\u2715 misfire</span>" if mark else "\u2715 misfire"
-            line += f" \u00b7 expected {html.escape(s.expected)} {share:.1f}% \u00b7 {misfire}"
+            line += f" \u00b7 expected {html.escape(s.expected)} {share} \u00b7 {misfire}"
         elif s.expected is not None:
             line += " \u00b7 \u2713 as expected"
         if side == "edited" and self.comparison is not None:
             cmp = self.comparison
             line += " \u00b7 prediction " + ("changed" if cmp.prediction_changed else "unchanged")
             shifts = ", ".join(
-                f"{html.escape(label)} {100 * cmp.probability_shift(label):+.1f} pts" for label in cmp.labels
+                f"{html.escape(label)} {fmt.points(cmp.probability_shift(label), signed=True)}"
+                for label in cmp.labels
             )
             return f"{line}<br>p shift: {shifts}"
-        rivals = ", ".join(f"{html.escape(name)} {100 * q:.1f}%" for name, q in p.top(RIVALS + 1)[1:])
+        rivals = ", ".join(f"{html.escape(name)} {fmt.percent(q)}" for name, q in p.top(RIVALS + 1)[1:])
         return f"{line}<br>next: {rivals}"
 
     # -- agreement -------------------------------------------------------------------------------

@@ -21,7 +21,7 @@ from PySide6.QtWidgets import QSizePolicy, QWidget
 from ui.explain.state import MethodColumn, disagrees
 from ui.widgets.colormap import accent, dim_text, qcolor_for, readable_text_on
 from ui.widgets.hover_view import HoverView
-from ui.widgets.signed import draw_signed_bar, number_text
+from ui.widgets.signed import draw_signed_bar
 
 MARGIN, CELL_PAD, MIN_LANE = 4, 2, 56
 
@@ -117,9 +117,20 @@ class EvidenceTable(HoverView):
         if col.signed:
             sign = "  (toward the label)" if value > 0 else "  (away from the label)" if value < 0 else ""
         return (
-            f"\u2018{self.labels[row]}\u2019 \u00b7 {col.title}: {value:+.5g}{sign}\n"
+            f"\u2018{self.labels[row]}\u2019 \u00b7 {col.title}: {col.texts()[row]}{sign}\n"
             f"rank {rank} of {len(col.values)} by size"
         )
+
+    @staticmethod
+    def header_note(col: MethodColumn) -> str:
+        """The lane header's second line: the rho (with a cross when it disagrees) or how occlusion was done."""
+        return f"{col.note} \u2715" if disagrees(col.rho) else col.note
+
+    def drawn_text(self) -> list[str]:
+        if not self.columns:
+            return [self.placeholder()]
+        heads = [text for col in self.columns for text in (col.title, self.header_note(col))]
+        return list(self.labels) + heads + [text for col in self.columns for text in col.texts()]
 
     # -- painting --------------------------------------------------------------------------------
     def paintEvent(self, _event: object) -> None:
@@ -141,15 +152,15 @@ class EvidenceTable(HoverView):
         for lane, col in enumerate(self.columns):
             peak = float(np.abs(col.values).max()) if col.values.size else 0.0
             p.setFont(small)
-            for row, value in enumerate(col.values):
+            for row, (value, text) in enumerate(zip(col.values, col.texts())):
                 cell = self.cell_rect(row, lane)
                 if col.signed:
-                    self._paint_signed(p, pal, cell, float(value), peak, small_fm)
+                    self._paint_signed(p, pal, cell, float(value), peak, small_fm, text)
                 else:
                     colour = qcolor_for(float(value), peak if peak > 0 else 1.0)
                     p.fillRect(cell, colour)
                     p.setPen(readable_text_on(colour))
-                    p.drawText(cell, Qt.AlignmentFlag.AlignCenter, number_text(float(value)))
+                    p.drawText(cell, Qt.AlignmentFlag.AlignCenter, text)
                 if self._hover == (row, lane):
                     p.setPen(accent(pal))
                     p.setBrush(Qt.BrushStyle.NoBrush)
@@ -195,19 +206,16 @@ class EvidenceTable(HoverView):
         title = QFontMetrics(bold).elidedText(col.title, Qt.TextElideMode.ElideRight, int(box.width()))
         p.drawText(box, Qt.AlignmentFlag.AlignCenter, title)
         p.setFont(self.font())
-        low = disagrees(col.rho)
-        p.setPen(accent(pal) if low else dim_text(pal, 0.75))
-        note = f"{col.note} \u2715" if low else col.note
-        note = fm.elidedText(note, Qt.TextElideMode.ElideRight, int(box.width()))
+        p.setPen(accent(pal) if disagrees(col.rho) else dim_text(pal, 0.75))
+        note = fm.elidedText(self.header_note(col), Qt.TextElideMode.ElideRight, int(box.width()))
         p.drawText(box.translated(0, line + 2), Qt.AlignmentFlag.AlignCenter, note)
 
     @staticmethod
     def _paint_signed(
-        p: QPainter, pal: QPalette, cell: QRectF, value: float, peak: float, fm: QFontMetrics
+        p: QPainter, pal: QPalette, cell: QRectF, value: float, peak: float, fm: QFontMetrics, text: str
     ) -> None:
         bar_rect = cell.adjusted(0, 3, 0, -3)
         draw_signed_bar(p, bar_rect, value, peak, pal)
-        text = number_text(value)
         half = QRectF(cell.x() + 3, cell.y(), cell.width() / 2 - 6, cell.height())
         if value >= 0:
             align = Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter

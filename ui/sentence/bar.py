@@ -14,6 +14,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from inspector import formatting as fmt
 from inspector.measures.analysis import Prediction
 from ui.widgets.colormap import accent, dim_text
 from ui.widgets.legend import meter_colours
@@ -38,9 +39,13 @@ class TopBars(QWidget):
 
     def set_items(self, items: list[tuple[str, float]], expected: str | None) -> None:
         self.items, self.expected = items, expected
-        tip = "\n".join(f"{lab}: {p:.4f}" for lab, p in items)
-        self.setToolTip(f"Top {len(items)} labels\n{tip}" if items else "")
+        tip = "\n".join(f"{lab}: {fmt.percent(p)}" for lab, p in items)
+        self.setToolTip(f"The {fmt.count(len(items), 'most probable label')}\n{tip}" if items else "")
         self.update()
+
+    def drawn_text(self) -> list[str]:
+        """Each label and its probability, as painted."""
+        return [text for label, prob in self.items for text in (label, fmt.percent(prob))]
 
     def sizeHint(self) -> QSize:
         return QSize(360, self.ROW * TOP_K + 2)
@@ -54,7 +59,7 @@ class TopBars(QWidget):
         label_w = min(
             max((fm.horizontalAdvance(lab) for lab, _ in self.items), default=60) + 12, self.width() // 2
         )
-        pct_w = fm.horizontalAdvance("100.0%") + 8
+        pct_w = fm.horizontalAdvance(fmt.percent(1.0)) + 8
         bar_w = max(self.width() - label_w - pct_w, 20)
         track, fill = meter_colours(pal)
         for i, (label, prob) in enumerate(self.items):
@@ -79,7 +84,7 @@ class TopBars(QWidget):
             p.drawText(
                 QRectF(label_w + bar_w, y, pct_w, self.ROW),
                 Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
-                f"{100 * prob:.1f}%",
+                fmt.percent(prob),
             )
         p.end()
 

@@ -17,9 +17,12 @@ from PySide6.QtGui import (
 )
 from PySide6.QtWidgets import QWidget
 
+from inspector import formatting as fmt
 from ui.widgets.colormap import accent, colour_bar_image, dim_text, rgba_image, to_rgba
 from ui.widgets.hover_view import HoverView
 from ui.widgets.labels import label_step, short_label
+
+AXES_TEXT = "query \u2193  key \u2192"
 
 
 class CloseUp(HoverView):
@@ -79,7 +82,7 @@ class CloseUp(HoverView):
         """(matrix rectangle, cell pitch, label font)."""
         m = len(self.labels)
         base = QFontMetrics(self.font())
-        bar_w = 12 + base.horizontalAdvance("0.000") + 12
+        bar_w = 12 + base.horizontalAdvance(fmt.weight(0.0)) + 12
         readout = base.height() + 8
         # First pass with a nominal font, then refine with the font that fits the pitch.
         font = self._label_font(12)
@@ -98,7 +101,7 @@ class CloseUp(HoverView):
         return self.cell_at(x, y)
 
     def hover_text(self, hit: object) -> str:
-        return self.readout()
+        return self.readout(hit)
 
     def on_hover(self, hit: object | None) -> None:
         self.hovered.emit(self.readout() if hit else "")
@@ -170,7 +173,7 @@ class CloseUp(HoverView):
         p.drawText(
             QRect(0, 0, rect.x() - 8, rect.y() - 4),
             Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignBottom,
-            "query \u2193  key \u2192",
+            AXES_TEXT,
         )
 
     def _draw_marks(self, p: QPainter, rect: QRect, pitch: float) -> None:
@@ -189,8 +192,13 @@ class CloseUp(HoverView):
         p.drawImage(bar, colour_bar_image(bar.width(), bar.height(), vertical=True))
         p.setPen(self.palette().color(QPalette.ColorRole.WindowText))
         fm = self.fontMetrics()
-        p.drawText(QPoint(bar.right() + 4, bar.y() + fm.ascent()), f"{self.vmax:.3f}")
-        p.drawText(QPoint(bar.right() + 4, bar.bottom()), "0")
+        top, bottom = self.scale_texts()
+        p.drawText(QPoint(bar.right() + 4, bar.y() + fm.ascent()), top)
+        p.drawText(QPoint(bar.right() + 4, bar.bottom()), bottom)
+
+    def scale_texts(self) -> tuple[str, str]:
+        """The colour bar's top and bottom labels."""
+        return fmt.weight(self.vmax), "0"
 
     def _draw_readout(self, p: QPainter, rect: QRect) -> None:
         p.setPen(self.palette().color(QPalette.ColorRole.WindowText))
@@ -200,11 +208,21 @@ class CloseUp(HoverView):
             self.readout(),
         )
 
-    def readout(self) -> str:
-        if self._hover is None or self.matrix is None:
+    def readout(self, hit: tuple[int, int] | None = None) -> str:
+        """What the cell ``hit`` (default: the hovered cell) holds, or how to use the view."""
+        hit = hit if hit is not None else self._hover
+        if hit is None or self.matrix is None:
             return "Hover a cell for its weight; click a row to make it the query."
-        q, k = self._hover
-        return f"query \u2018{self.labels[q]}\u2019 ({q}) \u2192 key \u2018{self.labels[k]}\u2019 ({k}): {self.matrix[q, k]:.4f}"
+        q, k = hit
+        return (
+            f"query \u2018{self.labels[q]}\u2019 ({q}) \u2192 key \u2018{self.labels[k]}\u2019 ({k}): "
+            f"{fmt.weight(self.matrix[q, k])}"
+        )
+
+    def drawn_text(self) -> list[str]:
+        if self._image is None:
+            return [self.placeholder()]
+        return [short_label(t) for t in self.labels] + [AXES_TEXT, *self.scale_texts(), self.readout()]
 
     # -- events ------------------------------------------------------------------------------------
     def mousePressEvent(self, event: QMouseEvent) -> None:

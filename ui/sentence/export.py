@@ -6,6 +6,7 @@
 
 from __future__ import annotations
 
+from inspector import formatting as fmt
 from inspector.figures import sentence as figures
 from inspector.figures.sentence import Caption
 from ui.sentence.state import SCALES, SentencePage, arc_links
@@ -41,7 +42,8 @@ def build_export(page: SentencePage, kind: str) -> ExportJob:
         per_head = opts.scale == "own"
         cap = caption(
             "Head mosaic",
-            f"all {a.num_layers} layers x {a.num_heads} heads, selected layer {page.layer}, head {page.head}",
+            f"all {fmt.count(a.num_layers, 'layer')} \u00d7 {fmt.count(a.num_heads, 'head')}, "
+            f"selected {fmt.head_name(page.layer, page.head)}",
             f"{page.metric_label()} (printed under each head)",
             SCALES[opts.scale],
         )
@@ -69,7 +71,7 @@ def build_export(page: SentencePage, kind: str) -> ExportJob:
         mode = (
             f"from query \u2018{labels[query]}\u2019"
             if opts.links == "query"
-            else f"every link >= {opts.threshold:g}"
+            else f"every link \u2265 {fmt.weight(opts.threshold, 2)}"
         )
         cap = caption(f"Token arcs, {focus.view}", f"{focus.where}; {mode}")
         q = query if opts.links == "query" else None

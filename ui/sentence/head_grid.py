@@ -17,6 +17,7 @@ from PySide6.QtCore import QPoint, QRect, QSize, Qt, Signal
 from PySide6.QtGui import QColor, QFont, QImage, QKeyEvent, QMouseEvent, QPainter, QPalette, QPen
 from PySide6.QtWidgets import QWidget
 
+from inspector import formatting as fmt
 from ui.widgets.colormap import LUT, accent, dim_text, rgba_image, to_codes
 from ui.widgets.hover_view import HoverView
 from ui.widgets.legend import meter_colours
@@ -234,7 +235,7 @@ class HeadGrid(HoverView):
             return None
         L, H = self.attention.shape[:2]
         fm = self.fontMetrics()
-        left = fm.horizontalAdvance(f"L{L - 1}") + 10
+        left = fm.horizontalAdvance(fmt.layer_name(L - 1)) + 10
         top = fm.height() + 4
         avail_w, avail_h = self.width() - left - 4, self.height() - top - 4
 
@@ -281,19 +282,31 @@ class HeadGrid(HoverView):
         self.rebuilds += 1
         return image
 
+    def number_texts(self) -> list[list[str]]:
+        """The metric value printed under each cell, [layer][head] (when the cells are large enough)."""
+        return [[fmt.weight(v, 2) for v in row] for row in np.asarray(self.metric_values)]
+
+    def drawn_text(self) -> list[str]:
+        geo = self.grid_geometry()
+        if geo is None:
+            return [self.placeholder()]
+        ticks = [fmt.head_tick(h) for h in range(geo.heads)] + [fmt.layer_name(l) for l in range(geo.layers)]
+        numbers = self.number_texts() if geo.lane == NUMBER_LANE and self.metric_values is not None else []
+        return ticks + [text for row in numbers for text in row]
+
     def _print_numbers(self, image: QImage, geo: GridGeometry) -> None:
         p = QPainter(image)
         font = QFont(self.font())
         font.setPixelSize(10)
         p.setFont(font)
         p.setPen(self.palette().color(QPalette.ColorRole.WindowText))
-        for layer in range(geo.layers):
-            for head in range(geo.heads):
+        for layer, row in enumerate(self.number_texts()):
+            for head, text in enumerate(row):
                 x, y = head * geo.pitch_x, layer * geo.pitch_y + geo.cell + 6
                 p.drawText(
                     QRect(x, y, geo.cell, geo.lane - 6),
                     Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
-                    f"{self.metric_values[layer, head]:.2f}",
+                    text,
                 )
         p.end()
 
@@ -314,7 +327,7 @@ class HeadGrid(HoverView):
         bold = QFont(self.font())
         bold.setBold(True)
         fm = self.fontMetrics()
-        step = max(1, int(np.ceil((fm.horizontalAdvance("H00") + 4) / geo.pitch_x)))
+        step = max(1, int(np.ceil((fm.horizontalAdvance(fmt.head_tick(10)) + 4) / geo.pitch_x)))
         for head in range(geo.heads):
             if head != sel_head and (head % step or abs(head - sel_head) < step):
                 continue
@@ -325,7 +338,7 @@ class HeadGrid(HoverView):
             p.drawText(
                 QRect(r.x() - 8, 0, r.width() + 16, geo.top - 2),
                 Qt.AlignmentFlag.AlignHCenter | Qt.AlignmentFlag.AlignBottom,
-                f"H{head}",
+                fmt.head_tick(head),
             )
         row_step = max(1, int(np.ceil((fm.height()) / geo.pitch_y)))
         for layer in range(geo.layers):
@@ -338,7 +351,7 @@ class HeadGrid(HoverView):
             p.drawText(
                 QRect(0, r.y(), geo.left - 6, geo.cell),
                 Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
-                f"L{layer}",
+                fmt.layer_name(layer),
             )
         p.setFont(self.font())
 

@@ -19,6 +19,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
 from inspector.figures.sentence import CAUTION
 from inspector.measures.analysis import SentenceAnalysis
@@ -282,15 +283,15 @@ class SentencePageWidget(QWidget):
             self.colour_key.set_text(
                 "Colour = attention weight", "0", "each head's largest" if st.options.scale == "own" else "1"
             )
-            self.meter_key.set_text(f"Bar = {st.metric_label()}", f"{lo:g}", f"{hi:.3g}")
+            self.meter_key.set_text(f"Bar = {st.metric_label()}", fmt.number(lo), fmt.number(hi))
         a = st.analysis
         self.mosaic_panel.set_subtitle(
-            f"{a.num_layers}\u00d7{a.num_heads} \u00b7 {len(st.view().labels)} tokens"
+            f"{a.num_layers}\u00d7{a.num_heads} \u00b7 {fmt.count(len(st.view().labels), 'token')}"
         )
         rel = st.relevance()
         self.band.set_data(rel.values, rel.labels, rel.special, rel.note)
         self.band_panel.set_subtitle(f"{rel.source} \u00b7 {rel.note}")
-        top = "max" if rel.values is None else f"{rel.values.max():.3f}"
+        top = "max" if rel.values is None else fmt.weight(rel.values.max())
         self.band_key.set_text("Shade: relevance of each token for the prediction,", "0", top)
         self._refresh_prediction()
         self.refresh_selection()

@@ -7,6 +7,7 @@ from PySide6.QtCore import QPointF, QRectF, QSize, Qt
 from PySide6.QtGui import QPainter, QPen
 from PySide6.QtWidgets import QSizePolicy, QWidget
 
+from inspector import formatting as fmt
 from ui.widgets.colormap import accent, dim_text, qcolor_for, readable_text_on
 from ui.widgets.hover_view import HoverView
 
@@ -89,4 +90,9 @@ class RelevanceBand(HoverView):
     def hover_text(self, i: int) -> str:
         assert self.values is not None
         rank = int((self.values > self.values[i]).sum()) + 1
-        return f"\u2018{self.labels[i]}\u2019: {self.values[i]:.4f}  (rank {rank} of {len(self.values)})"
+        return (
+            f"\u2018{self.labels[i]}\u2019: {fmt.weight(self.values[i])}  (rank {rank} of {len(self.values)})"
+        )
+
+    def drawn_text(self) -> list[str]:
+        return [self.placeholder()] if self.values is None else list(self.labels)

@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from inspector import formatting as fmt
 from inspector.checkpoint.tokens import TokenView, apply_view, make_view
 from inspector.measures.analysis import SentenceAnalysis
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
@@ -100,7 +101,7 @@ class MatrixData:
     view: str
     """Name of the view ("Selected head", "Rollout" ...)."""
     where: str
-    """Which layer/head it comes from ("layer 2, head 5", "all layers" ...)."""
+    """Which layer/head it comes from ("L2H5", "all 4 layers" ...)."""
     note: str = ""
     """Why the matrix is missing, or a remark on how it was made."""
 
@@ -233,19 +234,19 @@ class SentencePage:
         note = ""
         pieces: np.ndarray | None
         if src == "head":
-            pieces, where = a.attention[self.layer, self.head], f"layer {self.layer}, head {self.head}"
+            pieces, where = a.attention[self.layer, self.head], fmt.head_name(self.layer, self.head)
         elif src == "layer_mean":
             pieces = a.attention[self.layer].mean(axis=0)
-            where = f"layer {self.layer}, mean of {a.num_heads} heads"
+            where = f"{fmt.layer_name(self.layer)}, mean of {fmt.count(a.num_heads, 'head')}"
         elif src == "rollout":
-            pieces, where = a.rollout, f"all {a.num_layers} layers"
+            pieces, where = a.rollout, f"all {fmt.count(a.num_layers, 'layer')}"
             note = "residual 0.5, heads averaged"
         elif src == "flow":
-            pieces, where = self.flow, f"all {a.num_layers} layers"
+            pieces, where = self.flow, f"all {fmt.count(a.num_layers, 'layer')}"
             note = self.flow_note() or "residual 0.5, heads averaged"
         elif src == "value_head":
             pieces = a.value_weighted[self.layer, self.head]
-            where = f"layer {self.layer}, head {self.head}"
+            where = fmt.head_name(self.layer, self.head)
             note = "weight x norm of the transformed value"
         else:
             raise KeyError(src)
@@ -263,7 +264,7 @@ class SentencePage:
         """Why flow is unavailable, or '' if it is (or will be) computed."""
         a = self._require()
         if len(a.tokens) > FLOW_MAX_TOKENS:
-            return f"flow is limited to {FLOW_MAX_TOKENS} tokens (this sentence has {len(a.tokens)})"
+            return f"flow is limited to {fmt.count(FLOW_MAX_TOKENS, 'token')} (this sentence has {len(a.tokens)})"
         if self.flow is None:
             return "computing flow..."
         return ""
@@ -316,8 +317,8 @@ class SentencePage:
     def head_summary(self, layer: int, head: int) -> str:
         """Every metric of one head, one per line (hover text)."""
         m = self._require().head_metrics
-        lines = [f"layer {layer}, head {head}"]
-        lines += [f"{METRIC_LABELS[name]}: {float(m.get(name)[layer, head]):.3f}" for name in METRIC_NAMES]
+        lines = [fmt.head_name(layer, head)]
+        lines += [f"{METRIC_LABELS[name]}: {fmt.weight(m.get(name)[layer, head])}" for name in METRIC_NAMES]
         return "\n".join(lines)
 
     # -- helpers ---------------------------------------------------------------------------------

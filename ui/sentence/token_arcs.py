@@ -24,6 +24,7 @@ from PySide6.QtGui import (
 )
 from PySide6.QtWidgets import QWidget
 
+from inspector import formatting as fmt
 from ui.sentence.state import arc_links
 from ui.widgets.colormap import accent, dim_text, qcolor_for
 from ui.widgets.hover_view import HoverView
@@ -149,11 +150,21 @@ class TokenArcs(HoverView):
             p.drawText(
                 self.rect().adjusted(8, 8, -8, -8),
                 Qt.AlignmentFlag.AlignHCenter | Qt.AlignmentFlag.AlignTop,
-                f"No link between two tokens reaches {self.threshold:.2f}; lower the threshold.",
+                self.no_link_text(),
             )
         self._draw_arcs(p, boxes)
         self._draw_tokens(p, boxes)
         p.end()
+
+    def no_link_text(self) -> str:
+        """Shown when no pair of tokens reaches the threshold."""
+        return f"No link between two tokens reaches {fmt.weight(self.threshold, 2)}; lower the threshold."
+
+    def drawn_text(self) -> list[str]:
+        if self.matrix is None:
+            return [self.placeholder()]
+        empty = [self.no_link_text()] if self.mode == "threshold" and not self.links() else []
+        return empty + [short_label(t, 18) for t in self.labels]
 
     def _draw_arcs(self, p: QPainter, boxes: list[QRectF]) -> None:
         links = self.links()
@@ -215,8 +226,11 @@ class TokenArcs(HoverView):
             return ""
         m = self.matrix
         top = np.argsort(-m[i])[:3]
-        tops = ", ".join(f"\u2018{self.labels[k]}\u2019 {m[i, k]:.3f}" for k in top)
-        first = f"\u2018{self.labels[self.query]}\u2019 \u2192 \u2018{self.labels[i]}\u2019: {m[self.query, i]:.4f}"
+        tops = ", ".join(f"\u2018{self.labels[k]}\u2019 {fmt.weight(m[i, k])}" for k in top)
+        first = (
+            f"\u2018{self.labels[self.query]}\u2019 \u2192 \u2018{self.labels[i]}\u2019: "
+            f"{fmt.weight(m[self.query, i])}"
+        )
         return f"{first}\nas query, looks most at: {tops}"
 
     # -- events ------------------------------------------------------------------------------------

@@ -35,10 +35,22 @@ class HoverView(QWidget):
         p.drawText(
             self.rect().adjusted(8, 8, -8, -8),
             Qt.AlignmentFlag.AlignCenter | Qt.TextFlag.TextWordWrap,
-            self.note or "No sentence analysed yet",
+            self.placeholder(),
         )
         p.end()
         return None
+
+    def placeholder(self) -> str:
+        """The text drawn instead of the view when there is nothing to draw."""
+        return self.note or "No sentence analysed yet"
+
+    def drawn_text(self) -> list[str]:
+        """Every string the view paints with its current data (labels, numbers, notes), as plain text.
+
+        Lets tests and tools read what a person sees without grabbing pixels; each view
+        builds these strings with the same helpers its ``paintEvent`` uses.
+        """
+        return []
 
     def hit_at(self, x: float, y: float) -> object | None:
         """What lies under the point (a token index, a cell ...), or None."""

@@ -38,6 +38,10 @@ class _Key(QWidget):
     def text(self) -> str:
         return f"{self._caption} {self._low} {self._high}"
 
+    def drawn_text(self) -> list[str]:
+        """The caption and the two end labels, as painted."""
+        return [self._caption, self._low, self._high]
+
     def sizeHint(self) -> QSize:
         fm = self.fontMetrics()
         width = fm.horizontalAdvance(f"{self._caption}  {self._low}  {self._high}") + self.SAMPLE_WIDTH + 24

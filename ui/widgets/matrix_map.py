@@ -17,6 +17,7 @@ from PySide6.QtCore import QPointF, QRectF, QSize, Qt
 from PySide6.QtGui import QColor, QFont, QPalette, QPen
 from PySide6.QtWidgets import QWidget
 
+from inspector import formatting as fmt
 from ui.widgets.colormap import accent, dim_text, readable_text_on, rgba_image, to_rgba
 from ui.widgets.hover_view import HoverView
 from ui.widgets.labels import label_step, short_label
@@ -40,7 +41,7 @@ class MatrixMap(HoverView):
         """Draw a separator every ``block`` rows and columns (0: none)."""
         self.marked: set[tuple[int, int]] = set()
         """Cells framed in the text colour (e.g. the diagonal, or grouped heads)."""
-        self.describe: Callable[[int, int], str] = lambda r, c: f"{self.values[r, c]:.4g}"
+        self.describe: Callable[[int, int], str] = lambda r, c: fmt.number(self.values[r, c])
 
     def set_data(
         self,
@@ -113,6 +114,12 @@ class MatrixMap(HoverView):
 
     def hover_text(self, hit: tuple[int, int]) -> str:
         return self.describe(*hit)
+
+    def drawn_text(self) -> list[str]:
+        if self.values is None or not self.values.size:
+            return [self.placeholder()]
+        names = [short_label(n, NAME_CHARS) for n in [*self.row_names, *self.col_names]]
+        return names + [text for line in self.texts or [] for text in line if text]
 
     # -- painting --------------------------------------------------------------------------------
     def paintEvent(self, _event: object) -> None:

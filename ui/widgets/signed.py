@@ -26,11 +26,6 @@ from ui.widgets.colormap import accent, dim_text
 from ui.widgets.legend import _Key, meter_colours
 
 
-def number_text(value: float, spec: str = ".3g") -> str:
-    """``value`` formatted with ``spec``, with a true minus sign (\u2212) for negatives."""
-    return format(value, spec).replace("-", "\u2212")
-
-
 def signed_colour(palette: QPalette, value: float) -> QColor:
     """Ink for a positive value, the accent for a negative one (zero counts as positive)."""
     return QColor(accent(palette)) if value < 0 else QColor(meter_colours(palette)[1])
