@@ -78,7 +78,7 @@ def percent(fraction: float | None, decimals: int = 1) -> str:
 
 
 def points(fraction: float, decimals: int = 1, *, signed: bool = False) -> str:
-    """A change of (or tolerance on) a percentage, given as a fraction: ``1.0 points``.
+    """A change of (or tolerance on) a percentage, given as a fraction: ``2.5 points``, ``1.0 point``.
 
     ``signed=True`` writes the sign: ``+2.3 points`` / ``\u22121.0 points``.
     """
@@ -86,6 +86,9 @@ def points(fraction: float, decimals: int = 1, *, signed: bool = False) -> str:
     bad = _finite(value)
     if bad:
         return bad
+    if round(value, decimals) == 0:
+        value = 0.0  # no sign on a change that rounds to nothing (as :func:`signed`)
+        signed = False
     text = f"{value:+.{decimals}f}" if signed else f"{value:.{decimals}f}"
     unit = "point" if abs(round(value, decimals)) == 1 else "points"
     return f"{_minus(text)} {unit}"

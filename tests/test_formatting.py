@@ -41,6 +41,7 @@ def test_percent_and_points():
     assert fmt.points(0.025) == "2.5 points"
     assert fmt.points(-0.023, signed=True) == "\u22122.3 points"
     assert fmt.points(0.004, signed=True) == "+0.4 points"
+    assert fmt.points(-0.0001, signed=True) == "0.0 points"
 
 
 def test_weights_signed_and_numbers():

@@ -298,7 +298,12 @@ class CorpusPage(QWidget):
         self.confusion = MatrixMap("Confusion matrix", tab)
         self.confusion_panel = Panel("Confusion matrix", self.confusion, tab)
         self.confusion_panel.set_subtitle("rows: expected \u00b7 columns: predicted \u00b7 framed: correct")
-        self._key(self.confusion_panel, "Share of the expected label's utterances:", "0%", "100%")
+        self._key(
+            self.confusion_panel,
+            "Share of the expected label's utterances:",
+            fmt.percent(0.0),
+            fmt.percent(1.0),
+        )
 
         self.misfires = _table(tab, MISFIRE_HEADER, "Misfires")
         header = self.misfires.horizontalHeader()
