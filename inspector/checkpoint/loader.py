@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Literal
 
 import inspector  # noqa: F401  (forces offline mode before transformers loads)
+from inspector import formatting as fmt
 from inspector.checkpoint.families import Family, LayerParts, family_for, layer_parts
 from inspector.errors import HeadcountError
 
@@ -91,7 +92,10 @@ def _safetensors_files(folder: Path) -> list[Path]:
         shards = sorted({folder / name for name in weight_map.values()})
         missing = [s.name for s in shards if not s.is_file()]
         if missing:
-            raise HeadcountError(f"{folder}: shard(s) listed in the index are missing: {', '.join(missing)}")
+            raise HeadcountError(
+                f"{folder}: {fmt.count(len(missing), 'shard')} listed in the index "
+                f"{'is' if len(missing) == 1 else 'are'} missing: {', '.join(missing)}"
+            )
         return shards
     single = folder / "model.safetensors"
     return [single] if single.is_file() else []
