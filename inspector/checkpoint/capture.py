@@ -8,6 +8,7 @@ that reuse one block for every layer (ALBERT).
 
 from __future__ import annotations
 
+import weakref
 from collections.abc import Sequence
 from contextlib import ExitStack
 from dataclasses import dataclass
@@ -196,10 +197,56 @@ class HeadGates:
         self._stack.callback(self.lm.model.register_forward_pre_hook(self.counter.reset).remove)
         for part in {id(p.out_proj): p for p in self.lm.parts}.values():
             self._stack.callback(part.out_proj.register_forward_pre_hook(self._hook).remove)
+        active = _ACTIVE_GATES.setdefault(self.lm.model, [])
+        active.append(self.gates)
+        self._stack.callback(
+            lambda: active.__setitem__(slice(None), [g for g in active if g is not self.gates])
+        )
         return self
 
     def __exit__(self, *exc: object) -> None:
         self._stack.close()
+
+
+_ACTIVE_GATES: weakref.WeakKeyDictionary[nn.Module, list[torch.Tensor]] = weakref.WeakKeyDictionary()
+"""The gates of every :class:`HeadGates` currently installed, per model."""
+
+
+def active_gates(lm: LoadedModel) -> np.ndarray | None:
+    """The product of every gate installed on ``lm`` right now, [layers, heads]; None when there is none.
+
+    Nested :class:`HeadGates` multiply (each hook scales the context vectors
+    once), so the model runs with the product.
+    """
+    found = [g for g in _ACTIVE_GATES.get(lm.model, []) if g is not None]
+    if not found:
+        return None
+    out = np.ones((lm.num_layers, lm.num_heads), dtype=np.float32)
+    for g in found:
+        out = out * g.detach().float().numpy()
+    return out
+
+
+def gated_out_weight(out_weight: np.ndarray, gates: np.ndarray | None) -> np.ndarray:
+    """W_O as the gated model uses it: the columns of head h in layer l scaled by ``gates[l, h]``.
+
+    Parameters
+    ----------
+    out_weight : ndarray of shape (layers, hidden, heads*d)
+    gates : ndarray of shape (layers, heads), or None (returns ``out_weight``)
+
+    Notes
+    -----
+    ``(g_h ctx_h) W_O^h = ctx_h (g_h W_O^h)``: gating a head's context vector is the
+    same as scaling its slice of W_O, so value-weighted measures computed from
+    this matrix describe the gated model (Kobayashi et al. 2020, eq. (5) for f_h).
+    """
+    if gates is None:
+        return out_weight
+    layers, hidden, width = out_weight.shape
+    heads = gates.shape[1]
+    scale = np.repeat(np.asarray(gates, dtype=out_weight.dtype), width // heads, axis=1)
+    return out_weight * scale[:, None, :]
 
 
 @dataclass
@@ -257,7 +304,9 @@ def run(
                 [v.reshape(n_b, n_t, lm.num_heads, -1) for v in rec.values], dim=1
             ).numpy()
             projs = [lm.parts[p].out_proj for p in rec.order]
-            cap.out_weight = torch.stack([m.weight for m in projs]).numpy()
+            cap.out_weight = gated_out_weight(
+                torch.stack([m.weight for m in projs]).numpy(), active_gates(lm)
+            )
             cap.out_bias = torch.stack(
                 [m.bias if m.bias is not None else torch.zeros(m.out_features) for m in projs]
             ).numpy()

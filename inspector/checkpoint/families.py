@@ -18,6 +18,7 @@ from torch import nn
 from inspector.errors import HeadcountError
 
 WeightSource = Literal["output", "dropout"]
+QkvLayout = Literal["separate"]
 
 
 @dataclass(frozen=True)
@@ -37,6 +38,10 @@ class Family:
     """``output``: weights are ``attention(...)[1]``; ``dropout``: they are the
     input of ``attention.dropout`` (families whose forward only returns weights
     when asked)."""
+    qkv_layout: QkvLayout = "separate"
+    """How heads sit in the query/key/value projections: ``separate`` = three
+    linear layers, head h owning output rows ``h*d:(h+1)*d`` of each. A family
+    with one fused projection adds its layout here and in :func:`head_rows`."""
 
 
 _BERT_LIKE = Family(
@@ -126,3 +131,31 @@ def layer_parts(base_model: nn.Module, family: Family) -> list[LayerParts]:
         )
         for b in blocks
     ]
+
+
+def head_rows(family: Family, parts: LayerParts, num_heads: int, head: int) -> list[tuple[nn.Linear, slice]]:
+    """The output rows of the query, key and value projections that compute ``head``.
+
+    Returns
+    -------
+    list of (linear layer, row slice)
+        Zeroing these rows (weight and bias) makes the head's queries, keys and
+        values zero. Layout from :attr:`Family.qkv_layout`.
+    """
+    if family.qkv_layout != "separate":
+        raise HeadcountError(f"no head slicing for the '{family.qkv_layout}' projection layout")
+    out = []
+    for linear in (parts.query, parts.key, parts.value):
+        d = linear.out_features // num_heads
+        out.append((linear, slice(head * d, (head + 1) * d)))
+    return out
+
+
+def head_columns(parts: LayerParts, num_heads: int, head: int) -> tuple[nn.Linear, slice]:
+    """The input columns of the attention output projection W_O that read ``head``'s context vector.
+
+    ``Concat(head_1, ..., head_h) W_O``: head h occupies input features
+    ``h*d:(h+1)*d`` of W_O (Vaswani et al. 2017, sec. 3.2.2).
+    """
+    d = parts.out_proj.in_features // num_heads
+    return parts.out_proj, slice(head * d, (head + 1) * d)

@@ -10,7 +10,7 @@ from pathlib import Path
 import numpy as np
 
 from inspector import formatting as fmt
-from inspector.cli.common import add_model_command, load_model
+from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model, mask_record
 from inspector.errors import HeadcountError
 
 _TABLE_COLUMNS = (
@@ -30,6 +30,7 @@ def analysis_json(result) -> dict:
     pred = result.prediction
     return {
         "model": result.model_name,
+        "mask": mask_record(result.mask or None),
         "text": result.text,
         "tokens": list(result.tokens),
         "special": [bool(s) for s in result.special],
@@ -41,6 +42,8 @@ def analysis_json(result) -> dict:
 def _print_table(result, out) -> None:
     pred = result.prediction
     print(f"model: {result.model_name}", file=out)
+    if result.mask:
+        print(f"heads switched off: {result.mask.describe(most=len(result.mask))}", file=out)
     print(f"{fmt.count(len(result.tokens), 'token')}: {' '.join(result.tokens)}", file=out)
     if pred is not None:
         top = ", ".join(f"{lab} {fmt.percent(p)}" for lab, p in pred.top(3))
@@ -60,7 +63,7 @@ def cmd_analyze(args: argparse.Namespace) -> int:
     if not args.text or not args.text.strip():
         raise HeadcountError("--text is empty")
     lm = load_model(args)
-    result = analyze_sentence(lm, args.text)
+    result = analyze_sentence(lm, args.text, mask=load_mask(args, lm))
     if args.save_attention:
         from inspector.figures.files import save_npz
 
@@ -80,4 +83,5 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument(
         "--save-attention", metavar="FILE.npz", help="write array 'attention' [layers, heads, n, n]"
     )
+    add_mask_option(p)
     p.set_defaults(func=cmd_analyze)

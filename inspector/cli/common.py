@@ -1,4 +1,4 @@
-"""What every command shares: the exit status for user errors, the model argument, opening the model."""
+"""What every command shares: the exit status for user errors, the model argument, opening the model, masks."""
 
 from __future__ import annotations
 
@@ -24,3 +24,26 @@ def add_model_command(sub: argparse._SubParsersAction, name: str, help_text: str
         help="read *.bin weights with torch's weights-only loader when no safetensors exist",
     )
     return p
+
+
+def add_mask_option(p: argparse.ArgumentParser) -> None:
+    """Add ``--mask FILE``: run the command with the heads of a mask file switched off."""
+    p.add_argument(
+        "--mask",
+        metavar="FILE",
+        help='switch off the heads of a mask file ({"layer": [head, ...]}, counted from 0, as prune_mask.json)',
+    )
+
+
+def load_mask(args: argparse.Namespace, lm):
+    """The mask named by ``--mask``, checked against the open model; None without ``--mask``."""
+    if not getattr(args, "mask", None):
+        return None
+    from inspector.checkpoint.masks import read_mask
+
+    return read_mask(args.mask, lm)
+
+
+def mask_record(mask) -> dict[str, list[int]] | None:
+    """What a command's JSON output records under ``mask``: the mask file's document, or None."""
+    return None if mask is None else mask.to_json()

@@ -12,10 +12,11 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from dataclasses import replace
 from typing import NoReturn
 
 from inspector import formatting as fmt
-from inspector.cli.common import add_model_command, load_model
+from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model
 from inspector.corpus.dataset import BAD_ROW_POLICIES, read_labelled
 from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
 from inspector.corpus.settings import CorpusSettings
@@ -89,6 +90,9 @@ def _print_report(summary: dict, out_dir: str, out) -> None:
         f"model: {summary['model']}   data: {data['file']} ({fmt.count(data['utterances'], 'utterance')})",
         file=out,
     )
+    if summary.get("mask"):
+        heads = ", ".join(fmt.head_name(int(layer), h) for layer, hs in summary["mask"].items() for h in hs)
+        print(f"heads switched off for the whole run: {heads}", file=out)
     bad = data["bad_rows"]
     if bad:
         print(f"skipped {fmt.count(len(bad), 'bad row')}:", file=out)
@@ -137,6 +141,9 @@ def cmd_corpus(args: argparse.Namespace) -> int:
 
     settings = settings_from_args(args)
     lm = load_model(args)
+    mask = load_mask(args, lm)
+    if mask is not None:
+        settings = replace(settings, mask=mask.heads)
     settings.check(lm)
     data = read_labelled(
         args.data,
@@ -266,6 +273,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--no-figures", action="store_true", help="write no PNG/SVG figures")
     p.add_argument("--json", action="store_true", help="print the summary JSON on stdout")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
+    add_mask_option(p)
     p.set_defaults(func=cmd_corpus)
 
 

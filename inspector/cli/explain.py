@@ -11,7 +11,7 @@ from typing import TextIO
 import numpy as np
 
 from inspector import formatting as fmt
-from inspector.cli.common import add_model_command, load_model
+from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model, mask_record
 from inspector.errors import HeadcountError
 from inspector.explanation.explain import CAUTION, RULE_NAMES, LabelEvidence, SentenceExplanation
 from inspector.explanation.faithfulness import METHOD_LABELS
@@ -70,6 +70,7 @@ def explanation_json(ex: SentenceExplanation) -> dict:
     """The stable JSON document of ``headcount explain --json`` for one sentence."""
     return {
         "model": ex.model_name,
+        "mask": mask_record(ex.mask or None),
         "text": ex.text,
         "words": list(ex.words),
         "tokens": list(ex.tokens),
@@ -147,6 +148,8 @@ def print_explanation(ex: SentenceExplanation, out: TextIO) -> None:
     """Human-readable explanation of one sentence."""
     pred = ex.prediction
     print(f"model: {ex.model_name}", file=out)
+    if ex.mask:
+        print(f"heads switched off: {ex.mask.describe(most=len(ex.mask))}", file=out)
     print(f"text: {ex.text}", file=out)
     top = ", ".join(f"{lab} {fmt.percent(p)}" for lab, p in pred.top(3))
     line = f"prediction: {pred.label}   (top: {top})"
@@ -214,7 +217,13 @@ def cmd_explain(args: argparse.Namespace) -> int:
         check_figure_path(Path(args.figure))
     lm = load_model(args)
     require_classifier(lm)
-    options = dict(steps=args.steps, occlusion=args.occlusion, baseline=args.baseline, rule=args.rule)
+    options = dict(
+        steps=args.steps,
+        occlusion=args.occlusion,
+        baseline=args.baseline,
+        rule=args.rule,
+        mask=load_mask(args, lm),
+    )
     comparison = None
     if args.compare is not None:
         comparison = compare_sentences(
@@ -281,4 +290,5 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument("--json", action="store_true", help="print one JSON object instead of text")
     p.add_argument("--figure", metavar="FILE", help="write a figure of the relevances (.png, .svg or .pdf)")
+    add_mask_option(p)
     p.set_defaults(func=cmd_explain)

@@ -26,6 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from inspector.checkpoint.masks import mask_json
 from inspector.errors import HeadcountError
 
 PRUNING_ORDERS: tuple[str, ...] = ("importance", "random", "duplicates")
@@ -121,14 +122,28 @@ def make_order(
     raise HeadcountError(f"unknown pruning order '{name}' (use: {', '.join(PRUNING_ORDERS)})")
 
 
-def step_counts(total: int, every: int) -> list[int]:
-    """Numbers of removed heads at which accuracy is measured: 0, every, 2*every, ..., total."""
+def step_counts(total: int, every: int, start: int = 0) -> list[int]:
+    """Numbers of removed heads at which accuracy is measured: start, start+every, ..., total.
+
+    ``start`` is the number of heads already off before the simulation (a mask).
+    """
     if every < 1:
         raise HeadcountError("pruning must evaluate every 1 or more heads")
-    steps = list(range(0, total + 1, every))
+    steps = list(range(start, total + 1, every))
     if steps[-1] != total:
         steps.append(total)
     return steps
+
+
+def masked_first(order: Sequence[Head], already_off: Sequence[Head]) -> list[Head]:
+    """``order`` with the heads that are already switched off moved to the front (in mask order).
+
+    A corpus run on a masked model starts its curves with the mask in place: the
+    first ``len(already_off)`` heads of every order are the mask.
+    """
+    off = list(dict.fromkeys((int(l), int(h)) for l, h in already_off))
+    gone = set(off)
+    return off + [h for h in order if h not in gone]
 
 
 def gates_for(removed: Sequence[Head], num_layers: int, num_heads: int) -> np.ndarray:
@@ -147,7 +162,7 @@ class PruningCurve:
     order: list[Head]
     """Every head, in removal order."""
     steps: list[int]
-    """Number of heads removed at each measured point (starts at 0)."""
+    """Number of heads removed at each measured point (starts at 0, or at the size of the run's mask)."""
     accuracy: list[float]
     utterances: int
     """Utterances evaluated at each step (the whole set unless capped)."""
@@ -175,14 +190,6 @@ def largest_safe_step(curve: PruningCurve, max_drop: float) -> int:
             break
         best = removed
     return best
-
-
-def mask_json(removed: Sequence[Head]) -> dict[str, list[int]]:
-    """``{"layer": [head, ...]}`` with layer numbers as strings, layers and heads from 0, sorted."""
-    out: dict[int, list[int]] = {}
-    for layer, head in removed:
-        out.setdefault(int(layer), []).append(int(head))
-    return {str(layer): sorted(heads) for layer, heads in sorted(out.items())}
 
 
 @dataclass

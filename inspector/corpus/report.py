@@ -17,6 +17,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from inspector.checkpoint.masks import mask_json
 from inspector.corpus.pruning import CAUTION
 from inspector.corpus.run import CorpusReport
 from inspector.figures.files import save_csv, save_json
@@ -76,6 +77,7 @@ def summary_dict(report: CorpusReport) -> dict:
         },
         "layers": report.num_layers,
         "heads_per_layer": report.num_heads,
+        "mask": mask_json(report.settings.mask) if report.settings.mask else None,
         "accuracy": ev.accuracy,
         "macro_f1": ev.macro_f1,
         "per_intent": {

@@ -36,6 +36,7 @@ import torch
 from inspector import formatting as fmt
 from inspector.checkpoint.capture import AttentionRecorder, HeadGates
 from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.masks import HeadMask, masked
 from inspector.corpus.batching import EncodedSet, PaddedBatch, encode_set, length_limit
 from inspector.corpus.dataset import LabelledSet
 from inspector.corpus.importance import HeadImportance, ImportanceAccumulator, gate_gradients
@@ -45,6 +46,7 @@ from inspector.corpus.pruning import (
     gates_for,
     largest_safe_step,
     make_order,
+    masked_first,
     step_counts,
 )
 from inspector.corpus.redundancy import DEFAULT_GROUP_THRESHOLD, DEFAULT_JS_ROWS, DivergenceSums, Redundancy
@@ -428,6 +430,7 @@ def simulate_pruning(
     subset: np.ndarray | None = None,
     baseline: float | None = None,
     progress: Progress | None = None,
+    start: int = 0,
 ) -> list[PruningCurve]:
     """Accuracy after switching off growing prefixes of each removal order.
 
@@ -446,6 +449,10 @@ def simulate_pruning(
     baseline : float, optional
         Accuracy with no head removed on the same utterances, if known.
     progress : Progress, optional
+    start : int
+        Heads already off when the simulation starts (the first ``start`` of
+        every order, see :func:`inspector.corpus.pruning.masked_first`); the
+        curves begin there.
 
     Returns
     -------
@@ -471,11 +478,11 @@ def simulate_pruning(
         idx, pred = predict(lm, batches, encoded, gates=gates_for(removed, layers, heads), progress=progress)
         return float(np.mean(pred == gold[idx]))
 
-    start = baseline if baseline is not None else accuracy([])
+    first = baseline if baseline is not None else accuracy(next(iter(orders.values()))[:start])
     curves = []
     for name, order in orders.items():
-        steps = step_counts(len(order), every)
-        accs = [start] + [accuracy(order[:k]) for k in steps[1:]]
+        steps = step_counts(len(order), every, start)
+        accs = [first] + [accuracy(order[:k]) for k in steps[1:]]
         curves.append(PruningCurve(name, list(order), steps, accs, len(used)))
     return curves
 
@@ -522,7 +529,7 @@ def plan_total(
     """Number of batch units :func:`run_corpus` will report, for the progress bar."""
     total = n_batches * (2 if settings.importance else 1)
     if settings.orders:
-        steps = step_counts(n_heads_total, settings.prune_every)
+        steps = step_counts(n_heads_total, settings.prune_every, len(set(settings.mask)))
         passes = (len(steps) - 1) * len(settings.orders) + (0 if baseline_known else 1)
         if settings.remove is not None and settings.remove not in steps:
             passes += 1
@@ -561,6 +568,10 @@ def run_corpus(
 
     Notes
     -----
+    With ``settings.mask``, the whole run is on the masked model: the scan,
+    importance (a switched-off head's importance is 0) and the pruning curves,
+    which start with the mask's heads off and continue from there.
+
     While it runs, forward hooks (attention recorder, head gates) sit on
     ``lm.model``: run nothing else on the same model object at the same time
     (from another thread), or it would see gated heads. Call it off the GUI
@@ -575,6 +586,20 @@ def run_corpus(
     settings = settings or CorpusSettings()
     _check_classifier(lm)
     settings.check(lm)
+    mask = HeadMask.of(settings.mask)
+    with masked(lm, mask):
+        return _run_corpus(lm, data, settings, mask, on_progress, should_stop, on_phase)
+
+
+def _run_corpus(
+    lm: LoadedModel,
+    data: LabelledSet,
+    settings: CorpusSettings,
+    mask: HeadMask,
+    on_progress: ProgressCallback | None,
+    should_stop: StopCheck | None,
+    on_phase: PhaseCallback | None,
+) -> CorpusReport:
     encoded = encode_set(lm, data.texts)
     gold = label_indices(lm, data)
     n_total = lm.num_layers * lm.num_heads
@@ -628,7 +653,10 @@ def run_corpus(
         progress.phase("pruning")
         imp = report.importance.normalized if report.importance is not None else None
         orders = {
-            name: make_order(name, lm.num_layers, lm.num_heads, importance=imp, js=red.js, seed=settings.seed)
+            name: masked_first(
+                make_order(name, lm.num_layers, lm.num_heads, importance=imp, js=red.js, seed=settings.seed),
+                mask.heads,
+            )
             for name in settings.orders
         }
         baseline = found.evaluation.accuracy if subset is None else None
@@ -642,6 +670,7 @@ def run_corpus(
             subset=subset,
             baseline=baseline,
             progress=progress,
+            start=len(mask),
         )
         mask_order = settings.chosen_mask_order
         removed, after = choose_mask(curves, mask_order, max_drop=settings.max_drop, remove=settings.remove)
@@ -656,6 +685,7 @@ def run_corpus(
                 subset=subset,
                 baseline=curves[0].accuracy[0],
                 progress=progress,
+                start=len(mask),
             )[0].accuracy[-1]
         report.pruning = PruningResult(
             curves=curves,

@@ -36,6 +36,8 @@ class CorpusSettings:
     mask_order: str | None = None
     """Order the exported set is taken from (default: the first of ``orders``)."""
     seed: int = 0
+    mask: tuple[tuple[int, int], ...] = ()
+    """Heads switched off for the whole run (layer, head); the pruning curves start from them."""
 
     def check(self, lm: LoadedModel) -> None:
         """Raise HeadcountError for settings that cannot work with ``lm``."""
@@ -63,6 +65,16 @@ class CorpusSettings:
             raise HeadcountError(f"can remove 0 to {total} heads, not {self.remove}")
         if self.mask_order is not None and self.mask_order not in self.orders:
             raise HeadcountError(f"the mask order '{self.mask_order}' is not among the simulated orders")
+        if self.mask:
+            from inspector.checkpoint.masks import HeadMask, check_mask
+
+            check_mask(HeadMask.of(self.mask), lm.num_layers, lm.num_heads)
+            off = len(set(self.mask))
+            if self.remove is not None and self.remove < off:
+                raise HeadcountError(
+                    f"the mask already switches {off} heads off; --remove counts them too, so it must be "
+                    f"at least {off}"
+                )
 
     @property
     def chosen_mask_order(self) -> str | None:

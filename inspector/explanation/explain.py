@@ -17,6 +17,7 @@ import numpy as np
 
 from inspector.checkpoint import capture
 from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.masks import HeadMask, masked
 from inspector.checkpoint.tokens import make_view
 from inspector.errors import HeadcountError
 from inspector.explanation.faithfulness import faithfulness, faithfulness_hints, merge_to_words
@@ -133,6 +134,8 @@ class SentenceExplanation:
     occlusion_replacement: str | None
     timings: dict[str, float] = field(default_factory=dict)
     """Seconds spent per part (``analysis``, ``attention_gradients``, ...) and ``total``."""
+    mask: HeadMask = field(default_factory=HeadMask)
+    """Heads switched off while explaining (empty: the full model)."""
 
     def evidence(self, label: str) -> LabelEvidence:
         for ev in self.labels:
@@ -247,6 +250,7 @@ def explain_sentence(
     occlusion: OcclusionMode = "remove",
     baseline: Baseline = "pad",
     rule: Rule = "gauss-legendre",
+    mask: HeadMask | None = None,
 ) -> SentenceExplanation:
     """Explain one sentence's prediction for the predicted and the expected label.
 
@@ -266,6 +270,8 @@ def explain_sentence(
     baseline : {'pad', 'zero'}, default 'pad'
         Integrated Gradients baseline (see :func:`inspector.explanation.gradients.baseline_embeddings`).
     rule : {'gauss-legendre', 'trapezoid'}, default 'gauss-legendre'
+    mask : HeadMask, optional
+        Heads to switch off: every piece of evidence is then the masked model's.
 
     Returns
     -------
@@ -286,7 +292,7 @@ def explain_sentence(
     for name in wanted:
         label_index(lm, name)
     watch = _Stopwatch()
-    analysis = analyze_sentence(lm, text)
+    analysis = analyze_sentence(lm, text, mask=mask)
     batch = capture.encode(lm, [text])
     pred = analysis.prediction
     names = _unique([pred.label, *wanted])
@@ -297,12 +303,13 @@ def explain_sentence(
     vw_rollout = value_weighted_rollout(analysis.layer_value_weighted)
     vw_words = merge_to_words(vw_rollout[CLASSIFICATION_POSITION], groups)
     watch.lap("analysis")
-    grads = attention_gradients(lm, batch, indices)
-    watch.lap("attention_gradients")
-    integral, used = integrated_gradients(lm, batch, indices, steps=steps, baseline=baseline, rule=rule)
-    watch.lap("integrated_gradients")
-    occ = occlude_words(lm, batch, groups, occlusion)
-    watch.lap("occlusion")
+    with masked(lm, mask):
+        grads = attention_gradients(lm, batch, indices)
+        watch.lap("attention_gradients")
+        integral, used = integrated_gradients(lm, batch, indices, steps=steps, baseline=baseline, rule=rule)
+        watch.lap("integrated_gradients")
+        occ = occlude_words(lm, batch, groups, occlusion)
+        watch.lap("occlusion")
 
     evidence = []
     for k, (name, idx) in enumerate(zip(names, indices)):
@@ -353,4 +360,5 @@ def explain_sentence(
         occlusion_mode=occ.mode,
         occlusion_replacement=occ.replacement,
         timings=watch.finish(),
+        mask=analysis.mask,
     )

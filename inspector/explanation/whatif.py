@@ -9,6 +9,7 @@ import numpy as np
 
 from inspector.checkpoint import capture
 from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.masks import HeadMask, masked
 from inspector.errors import HeadcountError
 from inspector.explanation.explain import (
     SentenceExplanation,
@@ -111,6 +112,7 @@ def compare_sentences(
     occlusion: OcclusionMode = "remove",
     baseline: Baseline = "pad",
     rule: Rule = "gauss-legendre",
+    mask: HeadMask | None = None,
 ) -> WhatIfComparison:
     """Explain ``original`` and ``edited`` for the same labels and compare them.
 
@@ -125,7 +127,7 @@ def compare_sentences(
         Per-head metric to compare (see :data:`inspector.measures.metrics.METRIC_NAMES`).
     top : int, default 5
         How many most-changed heads to list.
-    steps, occlusion, baseline, rule
+    steps, occlusion, baseline, rule, mask
         Passed to :func:`inspector.explanation.explain.explain_sentence`.
 
     Returns
@@ -147,10 +149,11 @@ def compare_sentences(
         raise HeadcountError("the edited sentence is empty")
     if expected is not None:
         label_index(lm, expected)
-    first = capture.run(lm, [original, edited])
+    with masked(lm, mask):
+        first = capture.run(lm, [original, edited])
     preds = [make_prediction(lm.labels, first.logits[b]).label for b in range(2)]
     labels = list(dict.fromkeys([*preds, *([expected] if expected else [])]))
-    options = dict(steps=steps, occlusion=occlusion, baseline=baseline, rule=rule)
+    options = dict(steps=steps, occlusion=occlusion, baseline=baseline, rule=rule, mask=mask)
     a = explain_sentence(lm, original, expected=expected, extra_labels=labels, **options)
     b = explain_sentence(lm, edited, expected=expected, extra_labels=labels, **options)
     before = a.head_metrics.get(metric)

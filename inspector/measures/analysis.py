@@ -9,6 +9,7 @@ import numpy as np
 
 from inspector.checkpoint import capture
 from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.masks import HeadMask, masked
 from inspector.measures import metrics, norms, rollout
 
 
@@ -55,6 +56,8 @@ class SentenceAnalysis:
     """[layers, hidden, heads*d]."""
     out_bias: np.ndarray
     prediction: Prediction | None
+    mask: HeadMask = field(default_factory=HeadMask)
+    """The heads switched off while the sentence ran (empty: the full model)."""
     head_metrics: metrics.HeadMetrics = field(init=False)
 
     def __post_init__(self) -> None:
@@ -68,10 +71,15 @@ class SentenceAnalysis:
     def num_heads(self) -> int:
         return self.attention.shape[1]
 
+    @property
+    def heads_on(self) -> np.ndarray | None:
+        """[layers, heads] 1 for heads that ran, 0 for switched-off ones; None when every head ran."""
+        return self.mask.gates(self.num_layers, self.num_heads) if self.mask else None
+
     @cached_property
     def rollout(self) -> np.ndarray:
-        """Attention rollout [n, n] (Abnar & Zuidema 2020)."""
-        return rollout.attention_rollout(self.attention)
+        """Attention rollout [n, n] (Abnar & Zuidema 2020); switched-off heads left out of the layer means."""
+        return rollout.attention_rollout(self.attention, heads_on=self.heads_on)
 
     @cached_property
     def value_gram(self) -> np.ndarray:
@@ -92,7 +100,7 @@ class SentenceAnalysis:
 
     def flow(self, *, queries: list[int] | None = None) -> np.ndarray:
         """Attention flow [n, n]; raises ValueError for inputs too long to solve quickly."""
-        return rollout.attention_flow(self.attention, queries=queries)
+        return rollout.attention_flow(self.attention, queries=queries, heads_on=self.heads_on)
 
     def heads_table(self) -> list[dict[str, float | int]]:
         """One dict per head: layer, head and every metric (stable JSON names)."""
@@ -104,9 +112,15 @@ class SentenceAnalysis:
         ]
 
 
-def analyze_sentence(lm: LoadedModel, text: str) -> SentenceAnalysis:
-    """Run one sentence through the model and capture everything about it."""
-    cap = capture.run(lm, [text], values=True)
+def analyze_sentence(lm: LoadedModel, text: str, *, mask: HeadMask | None = None) -> SentenceAnalysis:
+    """Run one sentence through the model and capture everything about it.
+
+    With ``mask``, the sentence runs on the masked model (those heads' gates at
+    0): the prediction, every later head's attention and the value-weighted
+    measures are the masked model's.
+    """
+    with masked(lm, mask):
+        cap = capture.run(lm, [text], values=True)
     idx = cap.batch.real_index[0]
     prediction = make_prediction(lm.labels, cap.logits[0]) if lm.has_prediction else None
     return SentenceAnalysis(
@@ -120,4 +134,5 @@ def analyze_sentence(lm: LoadedModel, text: str) -> SentenceAnalysis:
         out_weight=cap.out_weight,
         out_bias=cap.out_bias,
         prediction=prediction,
+        mask=mask or HeadMask(),
     )

@@ -11,7 +11,39 @@ _FLOW_SCALE = 1e7
 """Capacities are scaled to integers for SciPy's max-flow solver (error < n*L/1e7)."""
 
 
-def residual_attention(attention: np.ndarray, residual: float = 0.5) -> np.ndarray:
+def head_mean(attention: np.ndarray, heads_on: np.ndarray | None = None) -> np.ndarray:
+    """Each layer's attention averaged over its heads that are switched on.
+
+    Parameters
+    ----------
+    attention : ndarray of shape (layers, heads, n, n)
+    heads_on : ndarray of shape (layers, heads), optional
+        1 for heads that run, 0 for heads switched off (a gate of 0 removes a
+        head's term from the layer's output). Default: every head on.
+
+    Returns
+    -------
+    ndarray of shape (layers, n, n), float64
+        ``sum_h g_lh a_lh / sum_h g_lh``; all zeros for a layer whose heads are all off.
+
+    Notes
+    -----
+    With every head on this is the plain head mean of Abnar & Zuidema (2020).
+    Leaving switched-off heads out of the mean is our own reading for a masked
+    model (no published source): a head that contributes nothing carries nothing.
+    """
+    att = np.asarray(attention, dtype=np.float64)
+    if heads_on is None:
+        return att.mean(axis=1)
+    w = np.asarray(heads_on, dtype=np.float64)
+    total = w.sum(axis=1)
+    summed = np.einsum("lh,lhij->lij", w, att)
+    return summed / np.where(total > 0, total, 1.0)[:, None, None]
+
+
+def residual_attention(
+    attention: np.ndarray, residual: float = 0.5, heads_on: np.ndarray | None = None
+) -> np.ndarray:
     """Head-averaged attention with the residual connection, rows renormalised.
 
     Parameters
@@ -19,6 +51,8 @@ def residual_attention(attention: np.ndarray, residual: float = 0.5) -> np.ndarr
     attention : ndarray of shape (layers, heads, n, n)
     residual : float, default 0.5
         Weight of the identity (the skip connection).
+    heads_on : ndarray of shape (layers, heads), optional
+        Heads switched off (0) are left out of the mean (see :func:`head_mean`).
 
     Returns
     -------
@@ -29,14 +63,18 @@ def residual_attention(attention: np.ndarray, residual: float = 0.5) -> np.ndarr
     ----------
     Abnar & Zuidema (2020), "Quantifying Attention Flow in Transformers", sec. 3.
     """
-    mean = np.asarray(attention, dtype=np.float64).mean(axis=1)
+    mean = head_mean(attention, heads_on)
     n = mean.shape[-1]
     aug = (1.0 - residual) * mean + residual * np.eye(n)
     return aug / aug.sum(-1, keepdims=True)
 
 
 def attention_rollout(
-    attention: np.ndarray, residual: float = 0.5, *, cumulative: bool = False
+    attention: np.ndarray,
+    residual: float = 0.5,
+    *,
+    cumulative: bool = False,
+    heads_on: np.ndarray | None = None,
 ) -> np.ndarray:
     """Attention rollout: the residual-augmented attention multiplied up the stack.
 
@@ -47,6 +85,8 @@ def attention_rollout(
     residual : float, default 0.5
     cumulative : bool
         Return the rollout after every layer instead of only the top one.
+    heads_on : ndarray of shape (layers, heads), optional
+        0 for heads switched off: they are left out of each layer's mean.
 
     Returns
     -------
@@ -59,7 +99,7 @@ def attention_rollout(
     Abnar & Zuidema (2020), "Quantifying Attention Flow in Transformers", eq. for
     attention rollout, with ``A = 0.5 W_att + 0.5 I``.
     """
-    aug = residual_attention(attention, residual)
+    aug = residual_attention(attention, residual, heads_on)
     out = np.empty_like(aug)
     acc = np.eye(aug.shape[-1])
     for layer, a in enumerate(aug):
@@ -68,13 +108,17 @@ def attention_rollout(
     return out if cumulative else out[-1]
 
 
-def flow_graph(attention: np.ndarray, residual: float = 0.5) -> tuple[np.ndarray, int, int]:
+def flow_graph(
+    attention: np.ndarray, residual: float = 0.5, heads_on: np.ndarray | None = None
+) -> tuple[np.ndarray, int, int]:
     """The layered flow network of Abnar & Zuidema as a dense capacity matrix.
 
     Parameters
     ----------
     attention : ndarray of shape (layers, heads, n, n)
     residual : float, default 0.5
+    heads_on : ndarray of shape (layers, heads), optional
+        0 for heads switched off (left out of each layer's mean).
 
     Returns
     -------
@@ -87,7 +131,7 @@ def flow_graph(attention: np.ndarray, residual: float = 0.5) -> tuple[np.ndarray
     ----------
     Abnar & Zuidema (2020), sec. 4, attention graph.
     """
-    aug = residual_attention(attention, residual)
+    aug = residual_attention(attention, residual, heads_on)
     layers, n, _ = aug.shape
     size = (layers + 1) * n
     cap = np.zeros((size, size))
@@ -102,6 +146,7 @@ def attention_flow(
     *,
     queries: list[int] | None = None,
     max_tokens: int = FLOW_MAX_TOKENS,
+    heads_on: np.ndarray | None = None,
 ) -> np.ndarray:
     """Attention flow: max-flow from each input token to each top-layer token.
 
@@ -113,6 +158,8 @@ def attention_flow(
         Top-layer tokens to solve for (default: all). Other rows stay 0.
     max_tokens : int
         Refuse longer inputs (the cost grows with n^2 max-flow problems).
+    heads_on : ndarray of shape (layers, heads), optional
+        0 for heads switched off (left out of each layer's mean).
 
     Returns
     -------
@@ -132,7 +179,7 @@ def attention_flow(
     n = attention.shape[-1]
     if n > max_tokens:
         raise ValueError(f"attention flow is limited to {max_tokens} tokens (this input has {n})")
-    cap, layers, _ = flow_graph(attention, residual)
+    cap, layers, _ = flow_graph(attention, residual, heads_on)
     graph = csr_matrix(np.rint(cap * _FLOW_SCALE).astype(np.int32))
     rows = range(n) if queries is None else queries
     out = np.zeros((n, n))
