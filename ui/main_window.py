@@ -27,8 +27,9 @@ from PySide6.QtWidgets import (
 
 from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel, load_checkpoint
+from inspector.checkpoint.masks import HeadMask
 from inspector.figures.sentence import CAUTION
-from inspector.measures.analysis import SentenceAnalysis, analyze_sentence
+from inspector.measures.analysis import Prediction, SentenceAnalysis, analyze_sentence, predict_sentence
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
 from ui.corpus.page import CorpusPage
 from ui.explain.page import ExplainPage
@@ -53,6 +54,9 @@ SHORTCUTS_HELP = """<table cellspacing=4>
 <tr><td><b>Up/Down, Left/Right</b></td><td>In the close-up / token arcs: move the query token</td></tr>
 <tr><td><b>Alt+1 \u2026 Alt+5</b></td><td>Close-up shows: head, layer mean, rollout, flow, value-weighted</td></tr>
 <tr><td><b>Ctrl+M</b></td><td>Next meter metric</td></tr>
+<tr><td><b>Space / Shift+Space</b></td><td>In the mosaic: switch the selected head / its layer off or on (also double-click)</td></tr>
+<tr><td><b>Ctrl+D / Ctrl+Shift+D</b></td><td>Switch the selected head / layer off or on from anywhere</td></tr>
+<tr><td><b>Ctrl+Shift+A</b></td><td>All heads back on (the full model)</td></tr>
 <tr><td><b>Ctrl+Shift+W / H</b></td><td>Words instead of pieces / hide special tokens</td></tr>
 <tr><td><b>Ctrl+E</b></td><td>Export the view that has the keyboard focus</td></tr>
 <tr><td><b>Ctrl+Shift+E</b></td><td>Export the one-page figure sheet (PDF)</td></tr>
@@ -67,7 +71,7 @@ INTERACTIVE_TORCH_THREADS = 1
 """Intra-op threads for the per-keystroke analysis (set in the worker thread only)."""
 
 
-def analyse_interactively(lm: LoadedModel, text: str) -> SentenceAnalysis:
+def analyse_interactively(lm: LoadedModel, text: str, mask: HeadMask | None = None) -> SentenceAnalysis:
     """Analyse one sentence for the window, on the calling (worker) thread.
 
     One torch thread: a single short sentence gains little from more, and on a
@@ -81,11 +85,23 @@ def analyse_interactively(lm: LoadedModel, text: str) -> SentenceAnalysis:
     if torch.get_num_threads() != INTERACTIVE_TORCH_THREADS:
         torch.set_num_threads(INTERACTIVE_TORCH_THREADS)
     with MODEL_LOCK:
-        result = analyze_sentence(lm, text)
+        result = analyze_sentence(lm, text, mask=mask)
     # Fill the lazily computed views here, on the worker thread, not on first paint in the GUI thread.
     result.rollout  # noqa: B018
     result.value_gram  # noqa: B018
     return result
+
+
+def analyse_with_mask(
+    lm: LoadedModel, text: str, mask: HeadMask, full: Prediction | None
+) -> tuple[SentenceAnalysis, Prediction | None]:
+    """The sentence on the masked model, and the full model's prediction beside it (one extra forward pass
+    unless ``full`` is already known for this text)."""
+    result = analyse_interactively(lm, text, mask)
+    if mask and full is None:
+        with MODEL_LOCK:
+            full = predict_sentence(lm, text)
+    return result, full
 
 
 class MainWindow(QMainWindow):
@@ -104,7 +120,7 @@ class MainWindow(QMainWindow):
         self._loading: Path | None = None
 
         self.message_bar = MessageBar(self)
-        self.sentence_page = SentencePageWidget(self.runner, self)
+        self.sentence_page = SentencePageWidget(self.runner, self, self.settings)
         self.exporter = ExportController(
             self,
             self.runner,
@@ -155,6 +171,8 @@ class MainWindow(QMainWindow):
         page = self.sentence_page
         page.bar.sentence_changed.connect(self.analyse)
         page.status.connect(lambda text: self.statusBar().showMessage(text, 6000))
+        page.error.connect(self.show_error)
+        page.mask_changed.connect(self._mask_changed)
         self.runner.busy_changed.connect(self._busy_changed)
         self.model_loaded.connect(self._explain_model)
         self.explain_page.status.connect(lambda text: self.statusBar().showMessage(text, 6000))
@@ -283,6 +301,11 @@ class MainWindow(QMainWindow):
         self._action(go_menu, "Previous &query token", lambda: page.move_query(-1), "Alt+Shift+Left")
         self._action(go_menu, "Next q&uery token", lambda: page.move_query(1), "Alt+Shift+Right")
 
+        heads_menu = bar.addMenu("H&eads")
+        heads_menu.addActions(page.mask_actions[:3])
+        heads_menu.addSeparator()
+        heads_menu.addActions(page.mask_actions[3:])
+
         help_menu = bar.addMenu("&Help")
         self._action(help_menu, "&Keyboard shortcuts", self.show_shortcuts, "F1")
         self._action(help_menu, "What &attention can and cannot tell", self.show_caution)
@@ -388,17 +411,24 @@ class MainWindow(QMainWindow):
             self.runner.cancel("analysis")
             page.set_model(lm)
             return
+        mask, full = page.state.mask, page.state.known_full_prediction(text)
         self.runner.submit(
             "analysis",
-            lambda: analyse_interactively(lm, text),
+            lambda: analyse_with_mask(lm, text, mask, full),
             lambda result: self._analysis_ready(lm, result),
             lambda msg: self.show_error(f"Could not analyse the sentence: {msg}"),
         )
 
-    def _analysis_ready(self, lm: LoadedModel, analysis: object) -> None:
+    def _analysis_ready(self, lm: LoadedModel, result: object) -> None:
         if lm is not self.lm:
             return  # the model changed while this sentence was being analysed
-        self.sentence_page.apply_analysis(analysis)
+        analysis, full = result
+        self.sentence_page.apply_analysis(analysis, full)
+
+    def _mask_changed(self, mask: HeadMask) -> None:
+        """Heads were switched off or on: analyse the sentence again at once, and tell the Explain page."""
+        self.analyse(self.sentence_page.bar.entry.text())
+        self.explain_page.set_mask(mask)
 
     def open_sentence(self, text: str, expected: str | None = None) -> None:
         """Load ``text`` into the sentence page with its expected label set, and analyse it."""

@@ -39,6 +39,18 @@ def make_prediction(labels: list[str], logits: np.ndarray) -> Prediction:
     return Prediction(labels[idx], idx, {lab: float(p) for lab, p in zip(labels, probs)})
 
 
+def predict_sentence(lm: LoadedModel, text: str, *, mask: HeadMask | None = None) -> Prediction | None:
+    """The prediction alone (one forward pass, no capture); None for a model without a label head."""
+    if not lm.has_prediction:
+        return None
+    import torch
+
+    batch = capture.encode(lm, [text])
+    with torch.no_grad(), masked(lm, mask):
+        logits = lm.model(**batch.model_inputs()).logits[0].numpy()
+    return make_prediction(lm.labels, logits)
+
+
 @dataclass
 class SentenceAnalysis:
     """Everything the views need about one sentence (padding already removed)."""

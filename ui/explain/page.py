@@ -31,11 +31,13 @@ from PySide6.QtWidgets import (
 
 from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.masks import HeadMask
 from inspector.errors import HeadcountError
 from inspector.explanation.explain import CAUTION, require_classifier
 from inspector.explanation.gradients import BASELINES
 from inspector.explanation.occlusion import OCCLUSION_MODES
 from inspector.figures.explanation import explanation_figure
+from inspector.formatting import count
 from ui.explain.panels import AgreementPanel, HeadsPanel, SentenceSide, combo
 from ui.explain.state import (
     BASELINE_TEXT,
@@ -95,6 +97,8 @@ class ExplainPage(QWidget):
         self._runner, self._exporter, self._defaults = runner, exporter, defaults
         self._wanted_expected: str | None = None
         """The expected label last asked for (kept while no model, or one without that label, is open)."""
+        self.mask = HeadMask()
+        """Heads switched off on the sentence page: the explanation is the masked model's."""
 
         request = self._request_box()
         self.original = SentenceSide("Original sentence", self)
@@ -221,6 +225,10 @@ class ExplainPage(QWidget):
         self.busy_note = QLabel("", row_widget)
         row.addSpacing(12)
         row.addWidget(self.busy_note)
+        self.mask_note = QLabel("", row_widget)
+        self.mask_note.setAccessibleName("Heads switched off")
+        row.addSpacing(12)
+        row.addWidget(self.mask_note)
         row.addStretch(1)
         self.colour_key = ColourKey(row_widget)
         self.colour_key.set_text("Attention lanes:", "0", "lane max")
@@ -234,6 +242,8 @@ class ExplainPage(QWidget):
     def set_model(self, lm: LoadedModel) -> None:
         """A new model: refill the label picker, forget the old result, re-explain if the page is showing."""
         self.lm = lm
+        self.mask = HeadMask()  # a mask belongs to the model it was made on
+        self._show_mask_note()
         self._runner.cancel(CHANNEL)
         self.expected.clear()
         self.expected.addItem(NO_EXPECTATION)
@@ -248,6 +258,31 @@ class ExplainPage(QWidget):
         self.clear(self.problem or f"{lm.name}: type a sentence and press Enter")
         if self.isVisible():
             self._run_if_idle()
+
+    def set_mask(self, mask: HeadMask) -> None:
+        """Explain on the model with ``mask``'s heads off; re-explain now if the page shows a result."""
+        if mask.heads == self.mask.heads:
+            return
+        self.mask = mask
+        self._show_mask_note()
+        if self.state.ready:
+            if self.isVisible():
+                self.run()
+            else:
+                self.state.set_result(None)  # explained again when the page is shown
+
+    def _show_mask_note(self) -> None:
+        if self.mask:
+            self.mask_note.setText(
+                f"<b>{count(len(self.mask), 'head')} off:</b> {self.mask.describe(most=4)}"
+            )
+            self.mask_note.setToolTip(
+                "Heads switched off on the Sentence page: every piece of evidence here is the masked model's. "
+                "All heads on: Ctrl+Shift+A."
+            )
+        else:
+            self.mask_note.setText("")
+            self.mask_note.setToolTip("")
 
     def clear(self, note: str) -> None:
         self.state.set_result(None)
@@ -296,6 +331,7 @@ class ExplainPage(QWidget):
             steps=self.steps_box.value(),
             occlusion=self.occlusion_box.currentData(),
             baseline=self.baseline_box.currentData(),
+            mask=self.mask,
         )
 
     def run(self) -> None:

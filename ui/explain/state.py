@@ -18,6 +18,7 @@ import numpy as np
 
 from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.masks import HeadMask
 from inspector.explanation.explain import RULE_NAMES, LabelEvidence, SentenceExplanation, explain_sentence
 from inspector.explanation.faithfulness import AGREEMENT_THRESHOLD, METHOD_LABELS
 from inspector.explanation.whatif import HeadChange, WhatIfComparison, compare_sentences, heads_that_changed
@@ -79,6 +80,8 @@ class ExplainRequest:
     baseline: str = "pad"
     rule: str = "gauss-legendre"
     top: int = TOP_HEADS
+    mask: HeadMask = HeadMask()
+    """Heads switched off (on the sentence page) while explaining."""
 
     @property
     def has_edit(self) -> bool:
@@ -86,7 +89,9 @@ class ExplainRequest:
 
     def options(self) -> dict:
         """Keyword arguments shared by ``explain_sentence`` and ``compare_sentences``."""
-        return dict(steps=self.steps, occlusion=self.occlusion, baseline=self.baseline, rule=self.rule)
+        return dict(
+            steps=self.steps, occlusion=self.occlusion, baseline=self.baseline, rule=self.rule, mask=self.mask
+        )
 
 
 @dataclass

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
-from PySide6.QtCore import QRectF, QSize, Qt, QTimer, Signal
+import html
+
+from PySide6.QtCore import QPointF, QRectF, QSize, Qt, QTimer, Signal
 from PySide6.QtGui import QFont, QFontMetrics, QPainter, QPalette, QPen
 from PySide6.QtWidgets import (
     QComboBox,
@@ -34,12 +36,22 @@ class TopBars(QWidget):
         super().__init__(parent)
         self.items: list[tuple[str, float]] = []
         self.expected: str | None = None
+        self.reference: dict[str, float] | None = None
+        """The full model's probabilities, marked as a tick on each bar while heads are switched off."""
         self.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Fixed)
         self.setFixedHeight(self.ROW * TOP_K + 2)
 
-    def set_items(self, items: list[tuple[str, float]], expected: str | None) -> None:
-        self.items, self.expected = items, expected
-        tip = "\n".join(f"{lab}: {fmt.percent(p)}" for lab, p in items)
+    def set_items(
+        self, items: list[tuple[str, float]], expected: str | None, reference: dict[str, float] | None = None
+    ) -> None:
+        self.items, self.expected, self.reference = items, expected, reference
+        tip = "\n".join(
+            f"{lab}: {fmt.percent(p)}"
+            + (f" (every head on: {fmt.percent(reference[lab])})" if reference else "")
+            for lab, p in items
+        )
+        if reference:
+            tip += "\nThe tick on each bar marks the probability with every head on."
         self.setToolTip(f"The {fmt.count(len(items), 'most probable label')}\n{tip}" if items else "")
         self.update()
 
@@ -79,6 +91,10 @@ class TopBars(QWidget):
             if is_expected:
                 p.setPen(QPen(pal.color(QPalette.ColorRole.WindowText), 1, Qt.PenStyle.DashLine))
                 p.drawRect(bar.adjusted(-1, -2, 1, 2))
+            if self.reference and label in self.reference:
+                x = bar.x() + bar_w * self.reference[label]
+                p.setPen(QPen(pal.color(QPalette.ColorRole.WindowText), 2))
+                p.drawLine(QPointF(x, y + 2), QPointF(x, y + self.ROW - 2))
             p.setFont(self.font())
             p.setPen(pal.color(QPalette.ColorRole.WindowText))
             p.drawText(
@@ -131,6 +147,18 @@ class SentenceBar(QWidget):
         )
         self.encoder_note.setWordWrap(True)
         self.encoder_note.hide()
+        self.mask_note = QLabel("", self)
+        self.mask_note.setWordWrap(True)
+        self.mask_note.setAccessibleName("Heads switched off")
+        self.mask_note.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.mask_note.setTextFormat(Qt.TextFormat.RichText)
+        self.mask_note.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.heads_row = QHBoxLayout()
+        """Row under the prediction: the heads-off controls (added by the page) and what switching heads off did."""
+        self.heads_row.setSpacing(4)
+        self.heads_row.addWidget(QLabel("Heads:", self))
+        self.heads_row.addSpacing(4)
+        self.heads_row.addWidget(self.mask_note, 1)
 
         entry_label = QLabel("&Sentence:", self)
         entry_label.setBuddy(self.entry)
@@ -151,7 +179,8 @@ class SentenceBar(QWidget):
         row.addWidget(self.verdict)
         row.addStretch(1)
         grid.addLayout(row, 1, 1)
-        grid.addWidget(self.encoder_note, 2, 1)
+        grid.addWidget(self.encoder_note, 1, 1)  # shares the cell of the prediction row, hidden for encoders
+        grid.addLayout(self.heads_row, 2, 0, 1, 4)
         grid.addWidget(self.bars, 0, 4, 3, 1)
         grid.setColumnStretch(1, 3)
         grid.setColumnStretch(4, 2)
@@ -188,14 +217,26 @@ class SentenceBar(QWidget):
         self.expected.setCurrentIndex(index)
         return True
 
-    def set_prediction(self, prediction: Prediction | None, *, misfire: bool) -> None:
+    def set_prediction(
+        self,
+        prediction: Prediction | None,
+        *,
+        misfire: bool,
+        full: Prediction | None = None,
+        mask_text: str = "",
+    ) -> None:
+        """Show a prediction; with heads switched off, ``full`` is the full model's and ``mask_text`` says so."""
+        self.set_mask_text(mask_text)
         if prediction is None:
             self.predicted.setText("\u2014")
             self.verdict.setText("")
             self.bars.set_items([], None)
             return
+        self.predicted_caption.setText("Predicted with heads off:" if mask_text else "Predicted:")
         self.predicted.setText(prediction.label)
-        self.bars.set_items(prediction.top(TOP_K), self.expected_label())
+        self.bars.set_items(
+            prediction.top(TOP_K), self.expected_label(), full.probabilities if full and mask_text else None
+        )
         pal = self.palette()
         if misfire:
             colour = accent(pal).name()
@@ -209,6 +250,21 @@ class SentenceBar(QWidget):
             self.verdict.setToolTip("")
         else:
             self.verdict.setText("")
+
+    def add_heads_control(self, widget: QWidget) -> None:
+        """Put a heads-off control (button) before the heads-off text."""
+        self.heads_row.insertWidget(self.heads_row.count() - 1, widget)
+
+    def set_mask_text(self, text: str) -> None:
+        """What switching heads off did ('' = every head on: a hint instead)."""
+        if text:
+            self.mask_note.setText(html.escape(text))
+        else:
+            dim = dim_text(self.palette(), 0.75).name()
+            self.mask_note.setText(
+                f"<span style='color:{dim}'>all on \u2014 double-click a head in the mosaic (or select it and "
+                "press Space) to switch it off and see what changes</span>"
+            )
 
     def is_misfire_shown(self) -> bool:
         return "Misfire" in self.verdict.text()

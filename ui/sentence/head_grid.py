@@ -164,12 +164,21 @@ def _blend(colour: QColor, background: QColor) -> tuple[int, int, int, int]:
 
 
 class HeadGrid(HoverView):
-    """All heads at a glance: click or use the arrow keys to pick one."""
+    """All heads at a glance: click or use the arrow keys to pick one; switch heads off and on.
+
+    Space (or a double click) switches the selected head off or on, Shift+Space
+    (or Shift + double click) its whole layer. A switched-off head is veiled and
+    crossed out, with "off" written on it when the cell is large enough.
+    """
 
     head_clicked = Signal(int, int)
     move_requested = Signal(int, int)
     hovered = Signal(int, int)
     """layer, head under the pointer; (-1, -1) when it leaves the cells."""
+    toggle_requested = Signal(int, int)
+    """Switch this head off (or back on)."""
+    layer_toggle_requested = Signal(int)
+    """Switch this whole layer off (or back on)."""
 
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__("Head mosaic", parent)
@@ -180,6 +189,7 @@ class HeadGrid(HoverView):
         self._meter: np.ndarray | None = None
         self._per_head = True
         self._selected = (0, 0)
+        self._off: frozenset[tuple[int, int]] = frozenset()
         self._summary: Callable[[int, int], str] | None = None
         self._version = 0
         self._cache_key: tuple | None = None
@@ -219,6 +229,16 @@ class HeadGrid(HoverView):
 
     def selection(self) -> tuple[int, int]:
         return self._selected
+
+    def set_off(self, heads: frozenset[tuple[int, int]] | set[tuple[int, int]]) -> None:
+        """Mark these heads as switched off (drawn over the cached mosaic image)."""
+        heads = frozenset(heads)
+        if heads != self._off:
+            self._off = heads
+            self.update()
+
+    def off_heads(self) -> frozenset[tuple[int, int]]:
+        return self._off
 
     def cell_count(self) -> int:
         return 0 if self.attention is None else int(self.attention.shape[0] * self.attention.shape[1])
@@ -316,9 +336,41 @@ class HeadGrid(HoverView):
         if p is None:
             return
         p.drawImage(QPoint(geo.left, geo.top), self._mosaic(geo))
+        self._draw_off(p, geo)
         self._draw_labels(p, geo)
         self._draw_marks(p, geo)
         p.end()
+
+    def _draw_off(self, p: QPainter, geo: GridGeometry) -> None:
+        """Veil and cross out every switched-off head (a shape, not only a colour), "off" when it fits."""
+        off = [(l, h) for l, h in self._off if l < geo.layers and h < geo.heads]
+        if not off:
+            return
+        pal = self.palette()
+        veil = QColor(pal.color(QPalette.ColorRole.Window))
+        veil.setAlphaF(0.62)
+        ink = pal.color(QPalette.ColorRole.WindowText)
+        pen = QPen(ink, 2 if geo.cell >= 24 else 1)
+        font = QFont(self.font())
+        font.setPixelSize(max(9, min(13, geo.cell // 4)))
+        font.setBold(True)
+        p.save()
+        p.setRenderHint(QPainter.RenderHint.Antialiasing)
+        p.setFont(font)
+        label_w = p.fontMetrics().horizontalAdvance("off") + 6
+        for layer, head in off:
+            r = geo.cell_rect(layer, head)
+            p.fillRect(r, veil)
+            p.setPen(pen)
+            inset = r.adjusted(1, 1, -1, -1)
+            p.drawLine(inset.topLeft(), inset.bottomRight())
+            p.drawLine(inset.topRight(), inset.bottomLeft())
+            if geo.cell >= 30:
+                box = QRect(r.center().x() - label_w // 2, r.center().y() - 8, label_w, 16)
+                p.fillRect(box, pal.color(QPalette.ColorRole.Window))
+                p.setPen(ink)
+                p.drawText(box, Qt.AlignmentFlag.AlignCenter, "off")
+        p.restore()
 
     def _draw_labels(self, p: QPainter, geo: GridGeometry) -> None:
         pal = self.palette()
@@ -387,12 +439,31 @@ class HeadGrid(HoverView):
         return geo.cell_at(int(x), int(y)) if geo else None
 
     def hover_text(self, hit: object) -> str:
-        return self._summary(*hit) if self._summary is not None else ""
+        text = self._summary(*hit) if self._summary is not None else ""
+        return text + "\nDouble-click or Space: switch off/on \u00b7 Shift: the whole layer"
 
     def on_hover(self, hit: object | None) -> None:
         self.hovered.emit(*(hit or (-1, -1)))
 
+    def mouseDoubleClickEvent(self, event: QMouseEvent) -> None:
+        hit = self.hit_at(event.position().x(), event.position().y())
+        if hit is not None and event.button() == Qt.MouseButton.LeftButton:
+            if event.modifiers() & Qt.KeyboardModifier.ShiftModifier:
+                self.layer_toggle_requested.emit(hit[0])
+            else:
+                self.toggle_requested.emit(*hit)
+            event.accept()
+            return
+        super().mouseDoubleClickEvent(event)
+
     def keyPressEvent(self, event: QKeyEvent) -> None:
+        if event.key() in (Qt.Key.Key_Space, Qt.Key.Key_Delete) and self.attention is not None:
+            if event.modifiers() & Qt.KeyboardModifier.ShiftModifier:
+                self.layer_toggle_requested.emit(self._selected[0])
+            else:
+                self.toggle_requested.emit(*self._selected)
+            event.accept()
+            return
         moves = {
             Qt.Key.Key_Up: (-1, 0),
             Qt.Key.Key_Down: (1, 0),

@@ -6,12 +6,13 @@ views; the views only paint and forward clicks and keys back here.
 
 from __future__ import annotations
 
-from PySide6.QtCore import Qt, Signal
+from PySide6.QtCore import QPoint, QSettings, Qt, Signal
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (
     QComboBox,
     QDoubleSpinBox,
     QLabel,
+    QMenu,
     QScrollArea,
     QSplitter,
     QToolButton,
@@ -21,8 +22,10 @@ from PySide6.QtWidgets import (
 
 from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.masks import HeadMask
 from inspector.figures.sentence import CAUTION
-from inspector.measures.analysis import SentenceAnalysis
+from inspector.formatting import head_name, layer_name
+from inspector.measures.analysis import Prediction, SentenceAnalysis
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
 from ui.sentence.bar import SentenceBar
 from ui.sentence.close_up import CloseUp
@@ -31,6 +34,7 @@ from ui.sentence.relevance_band import RelevanceBand
 from ui.sentence.state import LINK_MODES, RELEVANCE_SOURCES, SOURCES, SentencePage, metric_range
 from ui.sentence.token_arcs import TokenArcs
 from ui.widgets.legend import ColourKey, MeterKey
+from ui.widgets.mask_files import MaskFiles
 from ui.widgets.panel import Panel, column
 from ui.widgets.worker import JobRunner
 
@@ -51,13 +55,23 @@ class SentencePageWidget(QWidget):
     """All views have been given the current state (after an analysis or a change)."""
     status = Signal(str)
     """A short read-out for the status bar (hover values)."""
+    error = Signal(str)
+    """A problem the user can fix (a mask that does not fit the model ...)."""
+    mask_changed = Signal(object)
+    """The heads switched off changed (a HeadMask): the sentence should be analysed again now."""
 
-    def __init__(self, runner: JobRunner, parent: QWidget | None = None) -> None:
+    def __init__(
+        self, runner: JobRunner, parent: QWidget | None = None, settings: QSettings | None = None
+    ) -> None:
         super().__init__(parent)
         self.state = SentencePage()
+        self.lm: LoadedModel | None = None
         self._runner = runner
         self._grid_input: tuple | None = None
         self._flow_for: SentenceAnalysis | None = None
+        self.masks = MaskFiles(runner, settings, self)
+        self.masks.status.connect(self.status.emit)
+        self.masks.error.connect(self.error.emit)
 
         self.bar = SentenceBar(self)
         self.grid = HeadGrid(self)
@@ -86,6 +100,8 @@ class SentencePageWidget(QWidget):
         explain_button.setDefaultAction(self.explain_action)
         self.bar.layout().addWidget(explain_button, 1, 3, Qt.AlignmentFlag.AlignRight)
 
+        self._mask_actions()
+        self._heads_controls()
         self.mosaic_panel = self._mosaic_panel()
         self.closeup_panel = self._closeup_panel()
         self.arcs_panel = self._arcs_panel()
@@ -119,12 +135,149 @@ class SentencePageWidget(QWidget):
         self.grid.head_clicked.connect(self.select_head)
         self.grid.move_requested.connect(self.move_head)
         self.grid.hovered.connect(self._grid_hover)
+        self.grid.toggle_requested.connect(self.toggle_head)
+        self.grid.layer_toggle_requested.connect(self.toggle_layer)
+        self.grid.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
+        self.grid.customContextMenuRequested.connect(self._grid_menu)
         for view in (self.closeup, self.arcs):
             view.query_clicked.connect(self.set_query)
             view.query_move.connect(self.move_query)
         self.closeup.hovered.connect(self.status.emit)
         self.bar.expected_changed.connect(self._expected_changed)
         self.clear()
+
+    # -- heads switched off ------------------------------------------------------------------------
+    def _mask_actions(self) -> None:
+        def action(text: str, slot, shortcut: str = "", tip: str = "", icon_text: str = "") -> QAction:
+            act = QAction(text, self)
+            if shortcut:
+                act.setShortcut(QKeySequence(shortcut))
+                act.setShortcutContext(Qt.ShortcutContext.WindowShortcut)
+            act.setToolTip(tip + (f" ({shortcut})" if shortcut else ""))
+            act.setStatusTip(tip)
+            if icon_text:
+                act.setIconText(icon_text)
+            act.triggered.connect(slot)
+            return act
+
+        self.head_off_action = action(
+            "Switch the selected &head off / on",
+            lambda: self.toggle_head(*self.grid.selection()),
+            "Ctrl+D",
+            "Switch the selected head off (or back on) and re-analyse; Space or a double click in the mosaic",
+            "Head off/on",
+        )
+        self.layer_off_action = action(
+            "Switch the selected &layer off / on",
+            lambda: self.toggle_layer(self.grid.selection()[0]),
+            "Ctrl+Shift+D",
+            "Switch every head of the selected layer off (or back on); Shift+Space in the mosaic",
+            "Layer off/on",
+        )
+        self.reset_mask_action = action(
+            "&All heads on (full model)",
+            self.reset_mask,
+            "Ctrl+Shift+A",
+            "Switch every head back on",
+            "All on",
+        )
+        self.load_mask_action = action(
+            "L&oad a head mask…", self.ask_load_mask, tip="Switch off the heads of a prune_mask.json"
+        )
+        self.save_mask_action = action(
+            "&Save the heads switched off…",
+            self.ask_save_mask,
+            tip='Write the heads switched off as {"layer": [head, ...]}',
+        )
+        self.prune_action = action(
+            "&Write pruned checkpoint…",
+            self.ask_write_pruned,
+            tip="A copy of the model with the switched-off heads' weights zeroed (loads in plain transformers)",
+        )
+        self.mask_actions = [
+            self.head_off_action,
+            self.layer_off_action,
+            self.reset_mask_action,
+            self.load_mask_action,
+            self.save_mask_action,
+            self.prune_action,
+        ]
+        self.addActions(self.mask_actions[:3])
+        self._mask_enabled()
+
+    def _mask_enabled(self) -> None:
+        ready = self.state.ready
+        has_mask = bool(self.state.mask)
+        for act in (self.head_off_action, self.layer_off_action, self.load_mask_action):
+            act.setEnabled(ready)
+        for act in (self.reset_mask_action, self.save_mask_action, self.prune_action):
+            act.setEnabled(ready and has_mask)
+
+    def toggle_head(self, layer: int, head: int) -> None:
+        """Switch one head off (or back on) and ask for a re-analysis."""
+        if self.state.ready:
+            self.state.toggle_head(layer, head)
+            self._mask_set()
+
+    def toggle_layer(self, layer: int) -> None:
+        """Switch a whole layer off (or back on) and ask for a re-analysis."""
+        if self.state.ready:
+            self.state.toggle_layer(layer)
+            self._mask_set()
+
+    def reset_mask(self) -> None:
+        """Every head back on."""
+        if self.state.mask:
+            self.state.reset_mask()
+            self._mask_set()
+
+    def set_mask(self, mask: HeadMask) -> bool:
+        """Switch exactly ``mask``'s heads off (False, with an error, if the model lacks some)."""
+        if not self.state.set_mask(mask):
+            a = self.state.analysis
+            self.error.emit(
+                f"The mask names heads this {a.num_layers}×{a.num_heads} model does not have: {mask.describe()}"
+            )
+            return False
+        self._mask_set()
+        return True
+
+    def _mask_set(self) -> None:
+        self.grid.set_off(set(self.state.mask.heads))
+        self._mask_enabled()
+        self.mask_changed.emit(self.state.mask)
+
+    def ask_load_mask(self) -> None:
+        mask = self.masks.ask_load(self, self.lm)
+        if mask is not None:
+            self.set_mask(mask)
+
+    def ask_save_mask(self) -> None:
+        if self.state.mask:
+            self.masks.ask_save(self, self.state.mask)
+
+    def ask_write_pruned(self) -> None:
+        self.masks.ask_write_pruned(self, self.lm, self.state.mask)
+
+    def _grid_menu(self, pos: QPoint) -> None:
+        hit = self.grid.hit_at(pos.x(), pos.y())
+        if hit is None or not self.state.ready:
+            return
+        layer, head = hit
+        self.select_head(layer, head)
+        off = (layer, head) in set(self.state.mask.heads)
+        menu = QMenu(self)
+        menu.addAction(
+            f"Switch {head_name(layer, head)} {'on' if off else 'off'}", lambda: self.toggle_head(layer, head)
+        )
+        whole = all((layer, h) in set(self.state.mask.heads) for h in range(self.state.analysis.num_heads))
+        menu.addAction(
+            f"Switch layer {layer_name(layer)} {'on' if whole else 'off'}", lambda: self.toggle_layer(layer)
+        )
+        menu.addSeparator()
+        for act in self.mask_actions[2:]:
+            menu.addAction(act)
+        menu.exec(self.grid.mapToGlobal(pos))
 
     # -- panels ------------------------------------------------------------------------------------
     def _mosaic_panel(self) -> Panel:
@@ -148,6 +301,22 @@ class SentencePageWidget(QWidget):
         keys.addWidget(self.meter_key)
         panel.footer.addLayout(keys)
         return panel
+
+    def _heads_controls(self) -> None:
+        """The heads-off buttons, in the row under the prediction."""
+        for act in self.mask_actions[:3]:
+            button = QToolButton(self.bar)
+            button.setDefaultAction(act)
+            self.bar.add_heads_control(button)
+        more = QToolButton(self.bar)
+        more.setText("Mask \u25be")
+        more.setToolTip("Load or save the heads switched off; write a pruned checkpoint")
+        more.setPopupMode(QToolButton.ToolButtonPopupMode.InstantPopup)
+        menu = QMenu(more)
+        for act in self.mask_actions[3:]:
+            menu.addAction(act)
+        more.setMenu(menu)
+        self.bar.add_heads_control(more)
 
     def _closeup_panel(self) -> Panel:
         panel = Panel("Close-up", self.closeup, self)
@@ -203,6 +372,10 @@ class SentencePageWidget(QWidget):
 
     # -- model and analysis ------------------------------------------------------------------------
     def set_model(self, lm: LoadedModel) -> None:
+        self.state.reset_mask()  # a mask belongs to the model it was made on
+        self.grid.set_off(set())
+        self.lm = lm
+        self.state.set_full_prediction("", None)
         self.bar.set_labels(lm.labels, lm.has_prediction)
         if self.state.expected:
             self.bar.set_expected(self.state.expected)
@@ -217,14 +390,21 @@ class SentencePageWidget(QWidget):
         self.arcs.set_data(None, [], [], query=0, mode="query", threshold=0.1, note=note)
         self.band.set_data(None, [], [], note=note)
         self.bar.set_prediction(None, misfire=False)
+        self._mask_enabled()
         for panel in (self.mosaic_panel, self.closeup_panel, self.arcs_panel, self.band_panel):
             panel.set_subtitle("")
         self.colour_key.set_text("Colour: attention weight", "0", "max")
         self.meter_key.set_text("Meter:", "", "")
         self.band_key.set_text("Shade: relevance", "0", "max")
 
-    def apply_analysis(self, analysis: SentenceAnalysis) -> None:
-        """Show a fresh analysis in every view (GUI thread)."""
+    def apply_analysis(self, analysis: SentenceAnalysis, full: Prediction | None = None) -> None:
+        """Show a fresh analysis in every view (GUI thread).
+
+        ``full`` is the full model's prediction for the same text, when the
+        analysis ran with heads switched off (kept beside the masked one).
+        """
+        if full is not None or not analysis.mask:
+            self.state.set_full_prediction(analysis.text, full or analysis.prediction)
         self.state.set_analysis(analysis)
         self.refresh()
 
@@ -285,9 +465,11 @@ class SentencePageWidget(QWidget):
             )
             self.meter_key.set_text(f"Bar = {st.metric_label()}", fmt.number(lo), fmt.number(hi))
         a = st.analysis
+        self.grid.set_off(set(st.mask.heads))
         self.mosaic_panel.set_subtitle(
             f"{a.num_layers}\u00d7{a.num_heads} \u00b7 {fmt.count(len(st.view().labels), 'token')}"
         )
+        self._mask_enabled()
         rel = st.relevance()
         self.band.set_data(rel.values, rel.labels, rel.special, rel.note)
         self.band_panel.set_subtitle(f"{rel.source} \u00b7 {rel.note}")
@@ -322,7 +504,12 @@ class SentencePageWidget(QWidget):
 
     def _refresh_prediction(self) -> None:
         a = self.state.analysis
-        self.bar.set_prediction(a.prediction if a else None, misfire=self.state.is_misfire())
+        self.bar.set_prediction(
+            a.prediction if a else None,
+            misfire=self.state.is_misfire(),
+            full=self.state.known_full_prediction(a.text) if a else None,
+            mask_text=self.state.mask_text(),
+        )
 
     def _request_flow(self) -> None:
         analysis = self.state.analysis

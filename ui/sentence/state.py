@@ -14,8 +14,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from inspector import formatting as fmt
+from inspector.checkpoint.masks import HeadMask, missing_heads
 from inspector.checkpoint.tokens import TokenView, apply_view, make_view
-from inspector.measures.analysis import SentenceAnalysis
+from inspector.measures.analysis import Prediction, SentenceAnalysis
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
 from inspector.measures.rollout import FLOW_MAX_TOKENS
 
@@ -117,6 +118,52 @@ class RelevanceData:
     note: str = ""
 
 
+@dataclass(frozen=True)
+class LabelShift:
+    """How switching heads off moved one label's probability."""
+
+    label: str
+    role: str
+    """Why it is listed: ``full`` (the full model's prediction), ``masked`` (the prediction with the heads
+    off, when it differs) or ``expected``."""
+    before: float
+    """Probability with every head on."""
+    after: float
+    """Probability with the mask's heads off."""
+
+    @property
+    def change(self) -> float:
+        return self.after - self.before
+
+
+SHIFT_ROLES = {"full": "full model's prediction", "masked": "now predicted", "expected": "expected"}
+"""How each listed label is introduced in the heads-off line."""
+
+
+def label_shifts(full: Prediction, masked: Prediction, expected: str | None) -> list[LabelShift]:
+    """The full model's predicted label, the masked prediction (if it differs) and the expected label (if set)."""
+    out = [LabelShift(full.label, "full", full.probabilities[full.label], masked.probabilities[full.label])]
+    if masked.label != full.label:
+        out.append(
+            LabelShift(
+                masked.label, "masked", full.probabilities[masked.label], masked.probabilities[masked.label]
+            )
+        )
+    if expected and expected not in (full.label, masked.label) and expected in full.probabilities:
+        out.append(
+            LabelShift(expected, "expected", full.probabilities[expected], masked.probabilities[expected])
+        )
+    return out
+
+
+def shift_text(shift: LabelShift) -> str:
+    """``full model's prediction cancel_booking 94.6% → 40.1% (−54.5 points)``."""
+    return (
+        f"{SHIFT_ROLES[shift.role]} {shift.label} {fmt.percent(shift.before)} → {fmt.percent(shift.after)} "
+        f"({fmt.points(shift.change, signed=True)})"
+    )
+
+
 def classification_index(special: np.ndarray) -> int:
     """Position of the classification token: the first special token, else 0 (common practice, no source)."""
     hits = np.flatnonzero(np.asarray(special, dtype=bool))
@@ -136,6 +183,11 @@ class SentencePage:
     expected: str | None = None
     flow: np.ndarray | None = None
     """Attention flow [n, n] on pieces, filled in by a background job."""
+    mask: HeadMask = field(default_factory=HeadMask)
+    """The heads the user has switched off (the analysis follows after a re-run)."""
+    full_prediction: Prediction | None = None
+    """The prediction of the full model (every head on) for ``full_text``."""
+    full_text: str | None = None
     _cache: dict = field(default_factory=dict, repr=False)
 
     # -- changes ---------------------------------------------------------------------------------
@@ -148,6 +200,62 @@ class SentencePage:
             self.layer = min(self.layer, analysis.num_layers - 1)
             self.head = min(self.head, analysis.num_heads - 1)
             self.query_piece = min(self.query_piece, len(analysis.tokens) - 1)
+
+    def set_full_prediction(self, text: str, prediction: Prediction | None) -> None:
+        """Remember the full model's prediction for ``text`` (kept beside a masked analysis)."""
+        self.full_text, self.full_prediction = text, prediction
+
+    def known_full_prediction(self, text: str) -> Prediction | None:
+        """The full model's prediction for ``text`` if it is known already."""
+        return self.full_prediction if self.full_text == text else None
+
+    # -- heads switched off ------------------------------------------------------------------------
+    def set_mask(self, mask: HeadMask) -> bool:
+        """Use ``mask``; False (nothing changes) if it names heads the analysed model lacks."""
+        a = self.analysis
+        if a is not None and missing_heads(mask, a.num_layers, a.num_heads):
+            return False
+        self.mask = HeadMask(mask.heads, mask.source)
+        return True
+
+    def toggle_head(self, layer: int, head: int) -> HeadMask:
+        """Switch one head off, or back on."""
+        self.mask = self.mask.toggled(layer, head)
+        return self.mask
+
+    def toggle_layer(self, layer: int) -> HeadMask:
+        """Switch a whole layer off (or, if it is all off already, back on)."""
+        self.mask = self.mask.with_layer(layer, self._require().num_heads)
+        return self.mask
+
+    def reset_mask(self) -> HeadMask:
+        """Every head back on: the full model."""
+        self.mask = HeadMask()
+        return self.mask
+
+    def mask_pending(self) -> bool:
+        """True while the shown analysis was made with other heads off than the ones chosen now."""
+        return self.analysis is not None and self.analysis.mask.heads != self.mask.heads
+
+    def shifts(self) -> list[LabelShift]:
+        """How the shown analysis's heads-off prediction differs from the full model's (empty without a mask)."""
+        a = self.analysis
+        full = self.known_full_prediction(a.text) if a is not None else None
+        if a is None or not a.mask or a.prediction is None or full is None:
+            return []
+        return label_shifts(full, a.prediction, self.expected)
+
+    def mask_text(self) -> str:
+        """One line: which heads are off and what that did to the prediction ('' with every head on)."""
+        a = self.analysis
+        if a is None or not a.mask:
+            return ""
+        total = a.num_layers * a.num_heads
+        off = f"{len(a.mask)} of {total} off: {a.mask.describe(most=6)}"
+        shifts = self.shifts()
+        if not shifts:
+            return off
+        return f"{off} · " + "; ".join(shift_text(s) for s in shifts)
 
     def set_flow(self, analysis: SentenceAnalysis, flow: np.ndarray) -> bool:
         """Store a flow result if it belongs to the current analysis; False if it is stale."""
@@ -236,8 +344,12 @@ class SentencePage:
         if src == "head":
             pieces, where = a.attention[self.layer, self.head], fmt.head_name(self.layer, self.head)
         elif src == "layer_mean":
-            pieces = a.attention[self.layer].mean(axis=0)
-            where = f"{fmt.layer_name(self.layer)}, mean of {fmt.count(a.num_heads, 'head')}"
+            on = [h for h in range(a.num_heads) if (self.layer, h) not in set(a.mask.heads)]
+            pieces = a.attention[self.layer, on].mean(axis=0) if on else None
+            where = f"{fmt.layer_name(self.layer)}, mean of {fmt.count(len(on), 'head')}" + (
+                " on" if a.mask else ""
+            )
+            note = "" if on else "every head of this layer is switched off"
         elif src == "rollout":
             pieces, where = a.rollout, f"all {fmt.count(a.num_layers, 'layer')}"
             note = "residual 0.5, heads averaged"
@@ -318,6 +430,8 @@ class SentencePage:
         """Every metric of one head, one per line (hover text)."""
         m = self._require().head_metrics
         lines = [fmt.head_name(layer, head)]
+        if (layer, head) in set(self.mask.heads):
+            lines[0] += " — switched off: its output is removed (its attention is still computed)"
         lines += [f"{METRIC_LABELS[name]}: {fmt.weight(m.get(name)[layer, head])}" for name in METRIC_NAMES]
         return "\n".join(lines)
 
