@@ -316,7 +316,13 @@ class MainWindow(QMainWindow):
         page.explain.connect(self.open_explanation)
         page.status.connect(lambda text: self.statusBar().showMessage(text, 8000))
         page.error.connect(self.show_error)
+        page.use_mask.connect(self._use_mask)
         self.model_loaded.connect(page.set_model)
+
+    def _use_mask(self, mask: HeadMask) -> None:
+        """Switch the corpus page's chosen heads off on the sentence page, and show it."""
+        self.show_page(self.sentence_page)
+        self.sentence_page.set_mask(mask)
 
     def _focus(self, widget: QWidget) -> None:
         self.show_page(self.sentence_page)

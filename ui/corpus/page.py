@@ -47,25 +47,35 @@ from PySide6.QtWidgets import (
 
 from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.masks import HeadMask
 from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
 from inspector.corpus.report import write_report
 from inspector.corpus.run import PHASES, CorpusCancelled, CorpusReport
 from inspector.corpus.settings import CorpusSettings
-from inspector.figures.files import save_json
+from inspector.formatting import count
 from ui.corpus.pruning_plot import PruningPlot
 from ui.corpus.state import (
     CorpusRequest,
+    MaskChoice,
+    choose_by_count,
+    choose_by_tolerance,
+    choose_point,
     compute_corpus,
     confusion_shares,
     data_report_html,
     default_data_file,
+    find_on_curves,
     groups_html,
     head_names,
     intent_rows,
     mask_text,
+    provenance,
     summary_html,
+    with_choice,
+    with_threshold,
 )
 from ui.widgets.legend import ColourKey
+from ui.widgets.mask_files import MaskFiles
 from ui.widgets.matrix_map import MatrixMap
 from ui.widgets.panel import Panel, buddy_label, column, control_grid
 from ui.widgets.worker import MODEL_LOCK, JobRunner
@@ -136,12 +146,19 @@ class CorpusPage(QWidget):
     error = Signal(str)
     finished = Signal(str)
     """'done', 'cancelled' or 'failed' when a run ends."""
+    use_mask = Signal(object)
+    """A HeadMask to switch off on the Sentence page."""
 
     def __init__(self, runner: JobRunner, settings: QSettings, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self.runner, self.settings = runner, settings
         self.lm: LoadedModel | None = None
         self.report: CorpusReport | None = None
+        self.loaded_mask: HeadMask | None = None
+        """A mask read from a file that is no point of the curves (None: the chosen point is the mask)."""
+        self.masks = MaskFiles(runner, settings, self)
+        self.masks.status.connect(self.status.emit)
+        self.masks.error.connect(self.error.emit)
         self._default_file = ""
         self._stop = threading.Event()
         self._run = 0
@@ -199,17 +216,6 @@ class CorpusPage(QWidget):
             check.setChecked(name in defaults.orders)
             check.setToolTip(f"Simulate removing heads in the \u2018{name}\u2019 order")
             self.order_checks[name] = check
-        self.tolerance = QDoubleSpinBox(box)
-        self.tolerance.setRange(0.0, 100.0)
-        self.tolerance.setDecimals(1)
-        self.tolerance.setSingleStep(0.5)
-        self.tolerance.setValue(100 * defaults.max_drop)
-        self.tolerance.setAccessibleName("Accuracy tolerance")
-        self.tolerance.valueChanged.connect(self._units)
-        self.tolerance.setToolTip(
-            "The exported set removes the most heads whose removal never cost more accuracy, in percentage "
-            f"points ({fmt.points(0.01)} = a tolerance of 0.01 on the command line's --max-drop)"
-        )
         self.every = QSpinBox(box)
         self.every.setRange(1, 64)
         self.every.setValue(defaults.prune_every)
@@ -260,8 +266,6 @@ class CorpusPage(QWidget):
         for check in self.order_checks.values():
             second.addWidget(check)
         second.addSpacing(10)
-        second.addWidget(buddy("T&olerance:", self.tolerance))
-        second.addWidget(self.tolerance)
         second.addWidget(buddy("Measure e&very:", self.every))
         second.addWidget(self.every)
         second.addStretch(1)
@@ -346,15 +350,33 @@ class CorpusPage(QWidget):
         row = QHBoxLayout(sim_body)
         row.setContentsMargins(4, 0, 8, 4)
         row.addWidget(self.similarity, 3)
-        row.addWidget(self.groups, 1)
         self.similarity_panel = Panel("Head-by-head similarity", sim_body, tab)
         self.similarity_panel.set_subtitle(
             "1 \u2212 mean Jensen-Shannon divergence (bits) \u00b7 framed: near-duplicates"
         )
 
         self._key(self.similarity_panel, "Similarity:", "least similar pair", "identical")
+        self.threshold = QDoubleSpinBox(tab)
+        self.threshold.setRange(0.0, 1.0)
+        self.threshold.setDecimals(3)
+        self.threshold.setSingleStep(0.01)
+        self.threshold.setValue(CorpusSettings().group_threshold)
+        self.threshold.setSuffix(" bits")
+        self.threshold.setAccessibleName("Near-duplicate threshold")
+        self.threshold.setToolTip(
+            "Heads whose mean Jensen-Shannon divergence is at most this many bits form a near-duplicate group; "
+            "regrouped at once from the divergences already computed"
+        )
+        self.threshold.valueChanged.connect(self._threshold_moved)
+        group_side = QVBoxLayout()
+        group_side.setSpacing(2)
+        group_side.addWidget(buddy_label("Near-duplicate &within:", self.threshold, tab))
+        group_side.addWidget(self.threshold, 0, Qt.AlignmentFlag.AlignLeft)
+        group_side.addWidget(self.groups, 1)
+        row.addLayout(group_side, 1)
 
         self.plot = PruningPlot(tab)
+        self.plot.point_clicked.connect(self.choose_point)
         self.caution = QLabel(f"<b>Read with care:</b> {html.escape(CAUTION)}", tab)
         self.caution.setWordWrap(True)
         self.caution.setAccessibleName("Pruning caution")
@@ -366,12 +388,60 @@ class CorpusPage(QWidget):
             'Write the chosen set of heads to remove as JSON: {"layer": [head, ...]}'
         )
         self.save_mask_button.clicked.connect(self.choose_mask_file)
+        self.load_mask_button = QPushButton("L&oad mask\u2026", tab)
+        self.load_mask_button.setToolTip("Read a prune_mask.json and find it on the curves")
+        self.load_mask_button.clicked.connect(self.ask_load_mask)
+        self.try_mask_button = QPushButton("Try on a &sentence", tab)
+        self.try_mask_button.setToolTip("Switch the chosen heads off on the Sentence page")
+        self.try_mask_button.clicked.connect(lambda: self.use_mask.emit(self.chosen_mask()))
+        self.prune_button = QPushButton("&Write pruned checkpoint\u2026", tab)
+        self.prune_button.setToolTip(
+            "A copy of the model with the chosen heads' weights zeroed, with PRUNED.md (accuracy before/after)"
+        )
+        self.prune_button.clicked.connect(self.ask_write_pruned)
+        self.tolerance = QDoubleSpinBox(tab)
+        self.tolerance.setRange(0.0, 100.0)
+        self.tolerance.setDecimals(1)
+        self.tolerance.setSingleStep(0.5)
+        self.tolerance.setValue(100 * CorpusSettings().max_drop)
+        self.tolerance.setAccessibleName("Accuracy tolerance")
+        self.tolerance.setToolTip(
+            "Choose the most heads whose removal never cost more accuracy than this, in percentage points "
+            f"({fmt.points(0.01)} = a tolerance of 0.01 on the command line's --max-drop); after a run it moves "
+            "along the curve at once, and the next run starts from it"
+        )
+        self.tolerance.valueChanged.connect(self._units)
+        self.tolerance.valueChanged.connect(self._tolerance_moved)
+        self.order_box = QComboBox(tab)
+        self.order_box.setAccessibleName("Removal order to choose from")
+        self.order_box.currentIndexChanged.connect(lambda _i: self._tolerance_moved())
+        self.count_box = QSpinBox(tab)
+        self.count_box.setAccessibleName("Heads switched off")
+        self.count_box.setToolTip("Choose a number of heads: the nearest measured point at or below it")
+        self.count_box.valueChanged.connect(self._count_moved)
+        choose = QHBoxLayout()
+        choose.setSpacing(6)
+        for text, widget in (
+            ("O&rder:", self.order_box),
+            ("T&olerance:", self.tolerance),
+            ("or hea&ds:", self.count_box),
+        ):
+            choose.addWidget(buddy_label(text, widget, tab))
+            choose.addWidget(widget)
+        choose.addStretch(1)
+        buttons = QHBoxLayout()
+        buttons.setSpacing(6)
+        for button in (self.save_mask_button, self.load_mask_button, self.try_mask_button):
+            buttons.addWidget(button)
+        buttons.addStretch(1)
         plot_body = QWidget(tab)
         side = QVBoxLayout()
-        side.setSpacing(8)
+        side.setSpacing(6)
         side.addWidget(self.caution)
+        side.addLayout(choose)
         side.addWidget(self.mask_label)
-        side.addWidget(self.save_mask_button, 0, Qt.AlignmentFlag.AlignLeft)
+        side.addLayout(buttons)
+        side.addWidget(self.prune_button, 0, Qt.AlignmentFlag.AlignLeft)
         side.addStretch(1)
         prow = QHBoxLayout(plot_body)
         prow.setContentsMargins(8, 0, 8, 4)
@@ -536,7 +606,14 @@ class CorpusPage(QWidget):
         self.run_button.setEnabled(usable and not running)
         self.cancel_button.setEnabled(running and not self._stop.is_set())
         self.export_button.setEnabled(self.report is not None)
-        self.save_mask_button.setEnabled(self.report is not None and self.report.pruning is not None)
+        pruned = self.report is not None and self.report.pruning is not None
+        self.save_mask_button.setEnabled(pruned)
+        self.load_mask_button.setEnabled(pruned)
+        has_heads = bool(self.chosen_mask()) if self.report is not None else False
+        self.try_mask_button.setEnabled(has_heads)
+        self.prune_button.setEnabled(has_heads and not running)
+        for box in (self.order_box, self.count_box):
+            box.setEnabled(pruned)
         if not running:
             self.progress.setRange(0, 1)
             self.progress.setValue(1 if self.report is not None else 0)
@@ -558,6 +635,12 @@ class CorpusPage(QWidget):
     def show_report(self, report: CorpusReport) -> None:
         """Fill every view from ``report``."""
         self.report = report
+        self.loaded_mask = None
+        self._fill_choosers(report)
+        if self.threshold.value() != report.redundancy.threshold:
+            self.threshold.blockSignals(True)
+            self.threshold.setValue(report.redundancy.threshold)
+            self.threshold.blockSignals(False)
         self.data_note.setText(data_report_html(report.data))
         self.summary.setText(summary_html(report))
         self._fill_intents(report)
@@ -626,6 +709,11 @@ class CorpusPage(QWidget):
         )
 
     def _fill_heads(self, report: CorpusReport) -> None:
+        self._fill_importance(report)
+        self._fill_similarity(report)
+        self._fill_pruning(report)
+
+    def _fill_importance(self, report: CorpusReport) -> None:
         layers, heads = report.num_layers, report.num_heads
         imp = report.importance
         if imp is None:
@@ -642,6 +730,9 @@ class CorpusPage(QWidget):
                     f"(raw {fmt.number(imp.raw[l, h])}, normalised within the layer)"
                 ),
             )
+
+    def _fill_similarity(self, report: CorpusReport) -> None:
+        layers, heads = report.num_layers, report.num_heads
         red = report.redundancy
         names = head_names(layers, heads)
         grouped = {l * heads + h for g in red.groups for l, h in g}
@@ -665,8 +756,105 @@ class CorpusPage(QWidget):
             ),
         )
         self.groups.setText(groups_html(report))
-        self.plot.set_result(report.pruning, layers * heads, "No pruning order was chosen for this run")
-        self.mask_label.setText(html.escape(mask_text(report)))
+
+    def _fill_pruning(self, report: CorpusReport) -> None:
+        total = report.num_layers * report.num_heads
+        self.plot.set_result(report.pruning, total, "No pruning order was chosen for this run")
+        text = html.escape(mask_text(report))
+        if self.loaded_mask is not None:
+            text = (
+                f"<b>Loaded mask:</b> {count(len(self.loaded_mask), 'head')} off "
+                f"({html.escape(self.loaded_mask.describe())}) \u2014 not a point of these curves, so its "
+                "accuracy was not measured in this run."
+            )
+        self.mask_label.setText(text)
+        self._set_running(self.is_running())
+
+    # -- choosing the heads to remove along the curves ---------------------------------------------
+    def _fill_choosers(self, report: CorpusReport) -> None:
+        pr = report.pruning
+        for box in (self.order_box, self.count_box, self.tolerance):
+            box.blockSignals(True)
+        self.order_box.clear()
+        if pr is not None:
+            for curve in pr.curves:
+                self.order_box.addItem(curve.order_name)
+            self.order_box.setCurrentText(pr.mask_order)
+            curve = pr.curve(pr.mask_order)
+            self.count_box.setRange(curve.steps[0], len(curve.order))
+            self.count_box.setSingleStep(max(1, report.settings.prune_every))
+            self.count_box.setValue(len(pr.removed))
+            if pr.max_drop is not None:
+                self.tolerance.setValue(100 * pr.max_drop)
+        for box in (self.order_box, self.count_box, self.tolerance):
+            box.blockSignals(False)
+        self._units()
+
+    def chosen_mask(self) -> HeadMask:
+        """The heads chosen now: a loaded mask, else the chosen point of the curves (empty without a run)."""
+        if self.loaded_mask is not None:
+            return self.loaded_mask
+        if self.report is None or self.report.pruning is None:
+            return HeadMask()
+        return HeadMask.of(self.report.pruning.removed)
+
+    def apply_choice(self, choice: MaskChoice) -> None:
+        """Make ``choice`` the report's set of heads to remove and show it (no model call)."""
+        if self.report is None or self.report.pruning is None:
+            return
+        self.loaded_mask = None
+        self.report = with_choice(self.report, choice)
+        for box in (self.order_box, self.count_box):
+            box.blockSignals(True)
+        self.order_box.setCurrentText(choice.order)
+        self.count_box.setValue(choice.removed)
+        for box in (self.order_box, self.count_box):
+            box.blockSignals(False)
+        self._fill_pruning(self.report)
+
+    def _tolerance_moved(self, *_args: object) -> None:
+        pr = self.report.pruning if self.report is not None else None
+        if pr is None or not self.order_box.currentText():
+            return
+        self.apply_choice(choose_by_tolerance(pr, self.order_box.currentText(), self.tolerance.value() / 100))
+
+    def _count_moved(self, value: int) -> None:
+        pr = self.report.pruning if self.report is not None else None
+        if pr is not None and self.order_box.currentText():
+            self.apply_choice(choose_by_count(pr, self.order_box.currentText(), value))
+
+    def choose_point(self, curve: int, step: int) -> None:
+        """Choose the heads of one measured point of the plot."""
+        pr = self.report.pruning if self.report is not None else None
+        if pr is not None:
+            self.apply_choice(choose_point(pr, curve, step))
+
+    def _threshold_moved(self, value: float) -> None:
+        if self.report is not None:
+            self.report = with_threshold(self.report, value)
+            self._fill_similarity(self.report)
+
+    def ask_load_mask(self) -> None:
+        mask = self.masks.ask_load(self, self.lm)
+        if mask is not None:
+            self.load_mask(mask)
+
+    def load_mask(self, mask: HeadMask) -> None:
+        """Show a mask read from a file: as its point on the curves when it is one, else as it is."""
+        if self.report is None or self.report.pruning is None:
+            return
+        found = find_on_curves(self.report.pruning, mask)
+        if found is not None:
+            self.apply_choice(found)
+            return
+        self.loaded_mask = mask
+        self._fill_pruning(self.report)
+
+    def ask_write_pruned(self) -> None:
+        if self.report is None:
+            return
+        prov = provenance(self.report) if self.loaded_mask is None else None
+        self.masks.ask_write_pruned(self, self.lm, self.chosen_mask(), prov)
 
     # -- misfires ----------------------------------------------------------------------------------
     def _misfire_clicked(self, row: int, column_: int) -> None:
@@ -726,8 +914,4 @@ class CorpusPage(QWidget):
 
     def save_mask(self, path: Path) -> Path:
         """Write the chosen heads to ``path`` atomically as ``{"layer": [head, ...]}``."""
-        written = save_json(path, self.report.pruning.mask)
-        self.status.emit(
-            f"Saved the prune mask ({fmt.count(len(self.report.pruning.removed), 'head')}) to {path}"
-        )
-        return written
+        return self.masks.save(self.chosen_mask(), path)

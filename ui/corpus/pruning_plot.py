@@ -2,14 +2,15 @@
 
 Lines differ by dash pattern and marker shape as well as by shade, so they read
 apart without colour (and in greyscale print). The chosen set of heads to
-remove is marked with a vertical line. Hover shows the nearest measured point.
+remove is marked with a vertical line and a ring on its point. Hover shows the
+nearest measured point; a click chooses it (the page's spin boxes do the same from the keyboard).
 """
 
 from __future__ import annotations
 
 import numpy as np
-from PySide6.QtCore import QPointF, QRectF, QSize, Qt
-from PySide6.QtGui import QColor, QPainterPath, QPalette, QPen
+from PySide6.QtCore import QPointF, QRectF, QSize, Qt, Signal
+from PySide6.QtGui import QColor, QMouseEvent, QPainterPath, QPalette, QPen
 from PySide6.QtWidgets import QWidget
 
 from inspector import formatting as fmt
@@ -43,6 +44,9 @@ def draw_marker(p, centre: QPointF, kind: str, size: float) -> None:
 class PruningPlot(HoverView):
     """Accuracy after removing growing prefixes of each order (no retraining)."""
 
+    point_clicked = Signal(int, int)
+    """curve index, step index of the measured point the user chose."""
+
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__("Pruning curve", parent)
         self.result: PruningResult | None = None
@@ -50,6 +54,21 @@ class PruningPlot(HoverView):
         self.top = 1.0
         """Accuracy at the top of the plot: the next tenth above the best measured point (at most 100%)."""
         self.note = "No pruning simulated yet"
+
+    def mousePressEvent(self, event: QMouseEvent) -> None:
+        hit = self.hit_at(event.position().x(), event.position().y())
+        if hit is not None and event.button() == Qt.MouseButton.LeftButton:
+            self.point_clicked.emit(*hit)
+        super().mousePressEvent(event)
+
+    def chosen_point(self) -> tuple[int, int] | None:
+        """(curve, step) of the chosen set of heads, if it is a measured point."""
+        if self.result is None:
+            return None
+        for i, curve in enumerate(self.result.curves):
+            if curve.order_name == self.result.mask_order and len(self.result.removed) in curve.steps:
+                return i, curve.steps.index(len(self.result.removed))
+        return None
 
     def set_result(self, result: PruningResult | None, total_heads: int, note: str = "") -> None:
         self.result, self.total = result, max(total_heads, 1)
@@ -99,6 +118,7 @@ class PruningPlot(HoverView):
         return (
             f"{curve.order_name} order: {removed} of {fmt.count(len(curve.order), 'head')} removed "
             f"({fmt.percent(curve.fractions[k])}), accuracy {fmt.percent(curve.accuracy[k])}{last}"
+            "\nClick to choose these heads"
         )
 
     def tick_texts(self) -> tuple[list[str], list[str]]:
@@ -175,7 +195,7 @@ class PruningPlot(HoverView):
         p.setPen(mark)
         label = self.chosen_text()
         lx = min(x + 4, r.right() - fm.horizontalAdvance(label))
-        p.drawText(QPointF(lx, r.top() + fm.ascent()), label)
+        p.drawText(QPointF(lx, r.bottom() - fm.descent() - 3), label)
         for i, curve in enumerate(self.result.curves):
             dash, marker, alpha = STYLES[i % len(STYLES)]
             colour = QColor(ink)
@@ -190,6 +210,11 @@ class PruningPlot(HoverView):
             for pt in pts:
                 draw_marker(p, pt, marker, size)
         self._legend(p, r, ink)
+        chosen_pt = self.chosen_point()
+        if chosen_pt is not None:
+            p.setBrush(Qt.BrushStyle.NoBrush)
+            p.setPen(QPen(mark, 2.5))
+            p.drawEllipse(self.points_of(*chosen_pt), 7, 7)
         if self._hover is not None:
             pt = self.points_of(*self._hover)
             p.setBrush(Qt.BrushStyle.NoBrush)

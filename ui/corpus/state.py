@@ -10,14 +10,17 @@ same calls as ``headcount corpus``; the ``*_rows`` / ``*_text`` helpers turn a
 from __future__ import annotations
 
 import html
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
 
 from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.masks import HeadMask
+from inspector.checkpoint.pruned import PruneProvenance
 from inspector.corpus.dataset import LabelledSet, read_labelled
+from inspector.corpus.pruning import PruningCurve, PruningResult, largest_safe_step
 from inspector.corpus.run import CorpusReport, StopCheck, run_corpus
 from inspector.corpus.settings import CorpusSettings
 from inspector.paths import SAMPLE_EVAL, SAMPLE_MODEL
@@ -157,7 +160,7 @@ def groups_html(report: CorpusReport) -> str:
         for p in red.pairs()[:5]
     )
     return (
-        f"{groups}<span>every pair in a group within {fmt.bits(red.threshold)} of mean JS divergence</span>"
+        f"{groups}<br><span>every pair in a group within {fmt.bits(red.threshold)} of mean JS divergence</span>"
         f"<br><br><b>Closest pairs</b> (mean JS divergence)<table cellspacing=1>{pairs}</table>"
     )
 
@@ -168,10 +171,123 @@ def mask_text(report: CorpusReport) -> str:
     if pr is None:
         return "No pruning simulated (choose at least one order)."
     total = report.num_layers * report.num_heads
-    rule = f"tolerance {fmt.points(pr.max_drop)}" if pr.max_drop is not None else "fixed count"
+    rule = f"tolerance {fmt.points(pr.max_drop)}" if pr.max_drop is not None else "chosen by count"
     heads = ", ".join(fmt.head_name(l, h) for l, h in sorted(pr.removed)) or "none"
     return (
         f"Chosen from the \u2018{pr.mask_order}\u2019 order ({rule}): remove {len(pr.removed)} of "
         f"{fmt.count(total, 'head')} ({fmt.percent(len(pr.removed) / total)}); accuracy "
         f"{fmt.percent(pr.accuracy_before)} \u2192 {fmt.percent(pr.accuracy_after)}. Heads: {heads}"
+    )
+
+
+# ----------------------------------------------------------------------------- choosing along the curves
+
+
+@dataclass(frozen=True)
+class MaskChoice:
+    """A set of heads to switch off, read from a curve already computed (no model call)."""
+
+    order: str
+    """The removal order (curve) it comes from."""
+    removed: int
+    """How many heads: a measured step of that curve."""
+    accuracy: float
+    """The accuracy measured with exactly these heads off."""
+    max_drop: float | None
+    """The tolerance it was chosen by (None when picked by count or on the plot)."""
+    heads: tuple[tuple[int, int], ...]
+    """The first ``removed`` heads of the order."""
+
+    @property
+    def mask(self) -> HeadMask:
+        return HeadMask.of(self.heads)
+
+
+def _curve(result: PruningResult, order: str) -> PruningCurve:
+    try:
+        return result.curve(order)
+    except KeyError:
+        raise ValueError(f"no '{order}' curve in this run") from None
+
+
+def _choice(curve: PruningCurve, step_index: int, max_drop: float | None) -> MaskChoice:
+    removed = curve.steps[step_index]
+    return MaskChoice(
+        curve.order_name, removed, curve.accuracy[step_index], max_drop, tuple(curve.order[:removed])
+    )
+
+
+def choose_by_tolerance(result: PruningResult, order: str, max_drop: float) -> MaskChoice:
+    """The most heads of ``order`` whose removal never cost more than ``max_drop`` (a fraction) of accuracy.
+
+    The same rule as the corpus run (:func:`inspector.corpus.pruning.largest_safe_step`),
+    applied to the curve already measured.
+    """
+    curve = _curve(result, order)
+    count_ = largest_safe_step(curve, max_drop)
+    return _choice(curve, curve.steps.index(count_), max_drop)
+
+
+def choose_by_count(result: PruningResult, order: str, heads: int) -> MaskChoice:
+    """The first ``heads`` heads of ``order``, or the nearest measured step below (accuracy is known there)."""
+    curve = _curve(result, order)
+    below = [i for i, s in enumerate(curve.steps) if s <= heads]
+    return _choice(curve, below[-1] if below else 0, None)
+
+
+def choose_point(result: PruningResult, curve_index: int, step_index: int) -> MaskChoice:
+    """The mask of one measured point of one curve (a click on the plot)."""
+    return _choice(result.curves[curve_index], step_index, None)
+
+
+def choice_of(result: PruningResult) -> MaskChoice:
+    """The run's own choice, as a :class:`MaskChoice`."""
+    return MaskChoice(
+        result.mask_order,
+        len(result.removed),
+        result.accuracy_after,
+        result.max_drop,
+        tuple(result.removed),
+    )
+
+
+def find_on_curves(result: PruningResult, mask: HeadMask) -> MaskChoice | None:
+    """The measured point whose heads are exactly ``mask``'s, if any curve has one."""
+    want = set(mask.heads)
+    for curve in result.curves:
+        for i, removed in enumerate(curve.steps):
+            if removed == len(want) and set(curve.order[:removed]) == want:
+                return _choice(curve, i, None)
+    return None
+
+
+def with_choice(report: CorpusReport, choice: MaskChoice) -> CorpusReport:
+    """The report with its pruning choice replaced (what export, mask files and ``PRUNED.md`` then use)."""
+    pr = report.pruning
+    if pr is None:
+        raise ValueError("this run simulated no pruning")
+    chosen = replace(
+        pr,
+        mask_order=choice.order,
+        removed=list(choice.heads),
+        accuracy_after=choice.accuracy,
+        max_drop=choice.max_drop,
+    )
+    return replace(report, pruning=chosen)
+
+
+def with_threshold(report: CorpusReport, threshold: float) -> CorpusReport:
+    """The report with its near-duplicate groups cut again at ``threshold`` bits, from the stored divergences."""
+    return replace(report, redundancy=replace(report.redundancy, threshold=float(threshold)))
+
+
+def provenance(report: CorpusReport) -> PruneProvenance:
+    """What ``PRUNED.md`` says about the chosen mask of ``report``."""
+    pr = report.pruning
+    return PruneProvenance(
+        data_file=str(report.data.path),
+        utterances=pr.curves[0].utterances if pr else None,
+        order=pr.mask_order if pr else None,
+        accuracy_before=pr.accuracy_before if pr else None,
+        accuracy_after=pr.accuracy_after if pr else None,
     )
