@@ -121,6 +121,71 @@ def corpus_run(app, window) -> None:
     print("wrote docs/corpus.png, docs/corpus_heads.png")
 
 
+def two_heads_that_matter(lm, text: str, expected: str) -> tuple[list[tuple[int, int]], float]:
+    """Greedily, the two heads whose switching off raises the expected label's probability most (and that)."""
+    from inspector.checkpoint.masks import HeadMask
+    from inspector.measures.analysis import predict_sentence
+
+    chosen: list[tuple[int, int]] = []
+    best = 0.0
+    for _ in range(2):
+        heads = [(l, h) for l in range(lm.num_layers) for h in range(lm.num_heads) if (l, h) not in chosen]
+        scores = {
+            lh: predict_sentence(lm, text, mask=HeadMask.of([*chosen, lh])).probabilities[expected]
+            for lh in heads
+        }
+        head = max(scores, key=scores.get)
+        chosen.append(head)
+        best = scores[head]
+    return chosen, best
+
+
+def heads_off_case(model_dir: Path, limit: int = 12) -> tuple[str, str, list[tuple[int, int]]]:
+    """Among the first misfires of the evaluation set, the one two switched-off heads move most toward its label."""
+    from inspector.checkpoint.loader import load_checkpoint
+    from inspector.measures.analysis import predict_sentence
+    from inspector.paths import SAMPLE_EVAL
+
+    lm = load_checkpoint(model_dir)
+    with SAMPLE_EVAL.open(newline="", encoding="utf-8") as fh:
+        rows = [r for r in csv.DictReader(fh) if 7 <= len(r["text"].split()) <= 14]
+    cases = []
+    for row in rows:
+        full = predict_sentence(lm, row["text"])
+        if full.label == row["label"]:
+            continue
+        heads, after = two_heads_that_matter(lm, row["text"], row["label"])
+        cases.append((after - full.probabilities[row["label"]], row["text"], row["label"], heads))
+        if len(cases) >= limit:
+            break
+    _gain, text, expected, heads = max(cases)
+    return text, expected, heads
+
+
+def heads_off(app, window, model_dir: Path) -> None:
+    """A misfire on the sentence page with the two heads switched off that move it most toward its label."""
+    from inspector.checkpoint.masks import HeadMask
+    from inspector.formatting import head_name
+
+    page = window.sentence_page
+    window.show_page(page)
+    size = window.size()
+    window.resize(1366, 768)  # a laptop screen (the window may keep a larger minimum)
+    text, expected, heads = heads_off_case(model_dir)
+    window.open_sentence(text, expected)
+    wait_until(app, lambda: page.state.analysis.text == text and not window.is_busy())
+    page.set_mask(HeadMask.of(heads))
+    page.select_head(*heads[0])
+    wait_until(app, lambda: page.state.analysis.mask.heads == tuple(sorted(heads)) and not window.is_busy())
+    window.grab().save(str(DOCS / "heads_off.png"))
+    page.mosaic_panel.grab().save(str(DOCS / "heads_off_mosaic.png"))
+    page.reset_mask()
+    window.resize(size)
+    wait_until(app, lambda: not page.state.analysis.mask and not window.is_busy())
+    names = ", ".join(head_name(*h) for h in heads)
+    print(f"wrote docs/heads_off.png, docs/heads_off_mosaic.png ({names} off)")
+
+
 def dark_palette():
     from PySide6.QtGui import QColor, QPalette
 
@@ -205,6 +270,9 @@ def main() -> int:
     window.grab().save(str(DOCS / "explain.png"))
     print("wrote docs/explain.png")
     corpus_run(app, window)
+    heads_off(app, window, model)
+    window.open_sentence(text, expected)
+    wait_until(app, lambda: page.state.analysis.text == text and not window.is_busy())
 
     window.show_page(page)
     app.setPalette(dark_palette())

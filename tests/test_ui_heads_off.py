@@ -174,3 +174,31 @@ def test_masks_load_save_and_the_pruned_checkpoint_from_the_sentence_page(qtbot,
         probs = torch.softmax(model(**tok([SENTENCE], return_tensors="pt")).logits[0].double(), -1).numpy()
     shown = page.state.analysis.prediction.probabilities
     np.testing.assert_allclose(probs, [shown[lab] for lab in window.lm.labels], atol=1e-5)
+
+
+def test_a_switched_off_tile_is_crossed_out_not_only_recoloured(qtbot):
+    """Reference: the tile's own pixels (common practice, no source): on the diagonals of a switched-off cell
+    the pen of the window text is drawn, so the mark survives greyscale and colour-blind viewing."""
+    from PySide6.QtGui import QColor, QPalette
+
+    from ui.sentence.head_grid import HeadGrid
+
+    grid = HeadGrid()
+    qtbot.addWidget(grid)
+    grid.resize(520, 420)
+    rng = np.random.default_rng(0)
+    att = rng.random((3, 4, 9, 9)).astype(np.float32)
+    att /= att.sum(-1, keepdims=True)
+    grid.set_data(att, rng.random((3, 4)), (0.0, 1.0), per_head=True)
+    grid.show()
+    before = grid.grab().toImage()
+    grid.set_off({(1, 2)})
+    after = grid.grab().toImage()
+    r = grid.grid_geometry().cell_rect(1, 2)
+    ink = grid.palette().color(QPalette.ColorRole.WindowText)
+    quarter = r.topLeft() + (r.bottomRight() - r.topLeft()) / 4  # on the diagonal, clear of the "off" label
+    seen = QColor(after.pixel(quarter))
+    assert abs(seen.lightness() - ink.lightness()) < 40
+    assert before.pixel(quarter) != after.pixel(quarter)
+    other = grid.grid_geometry().cell_rect(0, 0).center()
+    assert before.pixel(other) == after.pixel(other)  # the other tiles are untouched
