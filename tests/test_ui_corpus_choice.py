@@ -21,6 +21,7 @@ from inspector.checkpoint.masks import HeadMask  # noqa: E402
 from inspector.corpus.dataset import read_labelled  # noqa: E402
 from inspector.corpus.run import CorpusReport, run_corpus  # noqa: E402
 from inspector.corpus.settings import CorpusSettings  # noqa: E402
+from inspector.formatting import percent  # noqa: E402
 from inspector.measures.analysis import predict_sentence  # noqa: E402
 from tests import test_ui_corpus  # noqa: E402
 from tests.corpus_models import UTTERANCES, write_csv  # noqa: E402
@@ -28,6 +29,7 @@ from ui.corpus.state import (  # noqa: E402
     choose_by_count,
     choose_by_tolerance,
     find_on_curves,
+    provenance,
     with_choice,
     with_threshold,
 )
@@ -137,6 +139,16 @@ def test_the_page_moves_along_the_curves_without_running_the_model(qtbot, window
     chosen = HeadMask.of(curve.order[: curve.steps[k]])
     saved = page.save_mask(tmp_path / "chosen.json")
     assert json.loads(saved.read_text()) == chosen.to_json()
+
+    out = tmp_path / "pruned"
+    page.masks.write_pruned(window.lm, page.chosen_mask(), out, provenance=provenance(page.report))
+    qtbot.waitUntil(lambda: (out / "PRUNED.md").is_file() and not window.is_busy(), timeout=WAIT_MS)
+    note = (out / "PRUNED.md").read_text()
+    assert (
+        f"{percent(curve.accuracy[0])} with every head, {percent(curve.accuracy[k])} with these heads off"
+        in note
+    )
+    assert json.loads((out / "prune_mask.json").read_text()) == chosen.to_json()
 
     with qtbot.waitSignal(window.sentence_page.mask_changed, timeout=WAIT_MS):
         page.try_mask_button.click()
