@@ -202,3 +202,22 @@ def test_a_switched_off_tile_is_crossed_out_not_only_recoloured(qtbot):
     assert before.pixel(quarter) != after.pixel(quarter)
     other = grid.grid_geometry().cell_rect(0, 0).center()
     assert before.pixel(other) == after.pixel(other)  # the other tiles are untouched
+
+
+def test_heads_off_text_follows_the_display_rules(qtbot, window):
+    """Reference: the project's display rules (tests/text_rules.py: one head form L2H3, percentages with one
+    decimal, changes in points, counts agreeing with their noun), applied to every string of the window and the
+    Explain page with a layer and a head switched off."""
+    from tests.test_displayed_text import visible_text
+    from tests.text_rules import violations
+
+    _open(qtbot, window, SENTENCE, expected="change_booking")
+    page = window.sentence_page
+    page.toggle_layer(2)
+    page.toggle_head(1, 1)
+    _wait_for_mask(qtbot, window, [(1, 1)] + [(2, h) for h in range(6)])
+    window.explain_current_sentence()
+    qtbot.waitUntil(lambda: window.explain_page.state.ready and not window.is_busy(), timeout=WAIT_MS)
+    items, columns = visible_text(window)
+    assert any("7 of 24 off" in t for _, t in items)
+    assert violations(items) + columns == []

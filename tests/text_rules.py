@@ -50,7 +50,8 @@ HEAD_FORMS: tuple[tuple[str, re.Pattern[str]], ...] = (
     ("'LN HM' instead of LNHM", re.compile(r"\bL\d+\s+H\d+\b")),
     ("'LN-HM' instead of LNHM", re.compile(r"(?i)\bL\d+\s*[-_.:/]\s*H\d+\b")),
     ("lower-case head name", re.compile(r"\bl\d+h\d+\b")),
-    ("'head N' instead of a head name", re.compile(r"(?i)\bheads?\s*#?\s*\d+\b")),
+    # a word "head"/"heads" then a number (not a path such as .../heads13/...)
+    ("'head N' instead of a head name", re.compile(r"(?i)\bheads?(?:\s+#?|#)\s*\d+\b")),
     ("'layer N' instead of LN", re.compile(r"(?i)\blayers?\s*#?\s*\d+\b")),
 )
 """Ways of naming a head (or a layer) other than the one form."""

@@ -312,7 +312,8 @@ class HeadGrid(HoverView):
             return [self.placeholder()]
         ticks = [fmt.head_tick(h) for h in range(geo.heads)] + [fmt.layer_name(l) for l in range(geo.layers)]
         numbers = self.number_texts() if geo.lane == NUMBER_LANE and self.metric_values is not None else []
-        return ticks + [text for row in numbers for text in row]
+        off = ["off"] * len(self._off) if geo.cell >= 30 else []
+        return ticks + [text for row in numbers for text in row] + off
 
     def _print_numbers(self, image: QImage, geo: GridGeometry) -> None:
         p = QPainter(image)
