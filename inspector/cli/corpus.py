@@ -168,6 +168,24 @@ def cmd_corpus(args: argparse.Namespace) -> int:
     return 0
 
 
+def add_data_options(p: argparse.ArgumentParser, batch_size: int) -> None:
+    """The options that say how to read a labelled set and how to batch it (corpus and compare)."""
+    p.add_argument("--text-field", default="text", help="column/key holding the utterance (default: text)")
+    p.add_argument("--label-field", default="label", help="column/key holding the label (default: label)")
+    p.add_argument(
+        "--format", choices=_FORMATS, default="auto", help="data format (default: from the suffix)"
+    )
+    p.add_argument(
+        "--on-bad-row",
+        choices=BAD_ROW_POLICIES,
+        default="skip",
+        help="skip bad rows and list them, or fail (default: skip)",
+    )
+    p.add_argument(
+        "--batch-size", type=int, default=batch_size, help=f"utterances per batch (default: {batch_size})"
+    )
+
+
 def _one_line_error(parser: argparse.ArgumentParser):
     def error(message: str) -> NoReturn:
         print(f"headcount {parser.prog.split()[-1]}: error: {message}", file=sys.stderr)
@@ -194,20 +212,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument(
         "--out", required=True, metavar="DIR", help="folder for the output files (created if needed)"
     )
-    p.add_argument("--text-field", default="text", help="column/key holding the utterance (default: text)")
-    p.add_argument("--label-field", default="label", help="column/key holding the label (default: label)")
-    p.add_argument(
-        "--format", choices=_FORMATS, default="auto", help="data format (default: from the suffix)"
-    )
-    p.add_argument(
-        "--on-bad-row",
-        choices=BAD_ROW_POLICIES,
-        default="skip",
-        help="skip bad rows and list them, or fail (default: skip)",
-    )
-    p.add_argument(
-        "--batch-size", type=int, default=d.batch_size, help=f"utterances per batch (default: {d.batch_size})"
-    )
+    add_data_options(p, d.batch_size)
     p.add_argument(
         "--orders",
         default=",".join(d.orders),

@@ -11,7 +11,7 @@ import argparse
 import sys
 from collections.abc import Callable, Sequence
 
-from inspector.cli import analyze, corpus, explain, prune
+from inspector.cli import analyze, compare, corpus, explain, prune
 from inspector.cli.common import EXIT_USER_ERROR
 from inspector.errors import HeadcountError
 
@@ -20,6 +20,7 @@ COMMANDS: tuple[Callable[[argparse._SubParsersAction], None], ...] = (
     explain.register,
     corpus.register,
     prune.register,
+    compare.register,
 )
 """Every sub-command's registration function, in the order ``--help`` lists them."""
 

@@ -18,6 +18,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from inspector.checkpoint.masks import mask_json
+from inspector.corpus.dataset import LabelledSet
 from inspector.corpus.pruning import CAUTION
 from inspector.corpus.run import CorpusReport
 from inspector.figures.files import save_csv, save_json
@@ -63,18 +64,23 @@ def _head(layer: int, head: int, **extra: float) -> dict:
     return {"layer": int(layer), "head": int(head), **extra}
 
 
+def data_dict(data: LabelledSet) -> dict:
+    """What was read: file, format, utterances used, bad rows and labels the model does not know."""
+    return {
+        "file": str(data.path),
+        "format": data.format,
+        "utterances": len(data),
+        "bad_rows": [{"row": b.row, "reason": b.reason} for b in data.bad_rows],
+        "unknown_labels": data.unknown_labels,
+    }
+
+
 def summary_dict(report: CorpusReport) -> dict:
     """The stable JSON document of ``summary.json`` and ``headcount corpus --json``."""
     ev, data = report.evaluation, report.data
     out: dict = {
         "model": report.model_name,
-        "data": {
-            "file": str(data.path),
-            "format": data.format,
-            "utterances": len(data),
-            "bad_rows": [{"row": b.row, "reason": b.reason} for b in data.bad_rows],
-            "unknown_labels": data.unknown_labels,
-        },
+        "data": data_dict(data),
         "layers": report.num_layers,
         "heads_per_layer": report.num_heads,
         "mask": mask_json(report.settings.mask) if report.settings.mask else None,
