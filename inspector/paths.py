@@ -7,6 +7,8 @@ from pathlib import Path
 PROJECT_ROOT = Path(__file__).resolve().parent.parent
 SAMPLE_MODEL = PROJECT_ROOT / "sample_models" / "ferry_intents"
 SAMPLE_EVAL = PROJECT_ROOT / "sample_models" / "data" / "ferry_eval.csv"
+SAMPLE_RETRAINED = PROJECT_ROOT / "sample_models" / "ferry_intents_retrained"
+"""The sample model retrained with 13 of its 24 heads switched off: the second model of comparison examples."""
 
 
 def sample_model_available() -> bool:

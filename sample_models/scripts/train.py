@@ -12,10 +12,21 @@ Everything is built from scratch on the CPU and offline:
 Python, NumPy and torch are seeded, so a rerun reproduces the metrics within noise (the
 ``tokenizers`` WordPiece trainer breaks frequency ties in an unseeded order).
 
+A second mode retrains an existing checkpoint briefly instead of starting from scratch
+(``--init-from``): it keeps that checkpoint's tokenizer, so the two models can be compared
+sentence by sentence, and it can switch heads off for good (``--switch-off MASK.json``, the
+``{"layer": [head, ...]}`` file ``headcount corpus`` writes as ``prune_mask.json``): their
+columns of the attention output projection are zeroed and kept at zero while training, so
+the rest of the model learns to do without them. The bundled ``ferry_intents_retrained``
+checkpoint was made this way.
+
 Usage::
 
     python sample_models/scripts/make_data.py
     python sample_models/scripts/train.py [--epochs N] [--seed N]
+    python sample_models/scripts/train.py --init-from sample_models/ferry_intents \
+        --switch-off sample_models/ferry_intents_retrained/switched_off.json \
+        --epochs 3 --learning-rate 3e-4 --out-dir sample_models/ferry_intents_retrained
 """
 
 from __future__ import annotations
@@ -68,6 +79,10 @@ class Settings:
     warmup_fraction: float = 0.1
     token_mask_rate: float = 0.15
     threads: int = 2
+    init_from: str = ""
+    """Start from this checkpoint (and keep its tokenizer) instead of from scratch."""
+    switched_off: str = ""
+    """Mask file of heads switched off (output-projection columns held at zero)."""
 
 
 @dataclass(frozen=True)
@@ -130,6 +145,45 @@ def build_model(settings: Settings, vocab_size: int, labels: Sequence[str]) -> B
         attn_implementation="eager",
     )
     return BertForSequenceClassification(config)
+
+
+def load_start(folder: Path) -> tuple[BertForSequenceClassification, BertTokenizer]:
+    """An existing checkpoint and its own tokenizer, to be trained further."""
+    tokenizer = BertTokenizer.from_pretrained(str(folder), local_files_only=True)
+    model = BertForSequenceClassification.from_pretrained(
+        str(folder), local_files_only=True, attn_implementation="eager"
+    )
+    return model, tokenizer
+
+
+def read_mask(path: Path) -> dict[int, list[int]]:
+    """Read a ``{"layer": [head, ...]}`` mask file (layers and heads counted from 0)."""
+    raw = json.loads(path.read_text(encoding="utf-8"))
+    return {int(layer): sorted(int(h) for h in heads) for layer, heads in raw.items()}
+
+
+def switch_off_heads(model: BertForSequenceClassification, mask: dict[int, list[int]]) -> int:
+    """Zero the masked heads' columns of each attention output projection and keep them at zero.
+
+    A head's context vector enters the layer only through its ``head_dim`` columns of the
+    output projection W_O, so zero columns remove the head exactly. A gradient hook zeroes
+    the same columns of every gradient: with AdamW both moments then stay 0 and the decoupled
+    weight decay of a zero weight is 0, so the columns stay exactly zero through training.
+    Returns the number of heads switched off.
+    """
+    config = model.config
+    width = config.hidden_size // config.num_attention_heads
+    count = 0
+    for layer, heads in mask.items():
+        dense = model.bert.encoder.layer[layer].attention.output.dense
+        keep = torch.ones_like(dense.weight)
+        for head in heads:
+            keep[:, head * width : (head + 1) * width] = 0.0
+            count += 1
+        with torch.no_grad():
+            dense.weight.mul_(keep)
+        dense.weight.register_hook(lambda grad, keep=keep: grad * keep)
+    return count
 
 
 def make_batches(
@@ -256,20 +310,33 @@ def confusion_pairs(predictions: Sequence[Prediction], top: int = 6) -> list[tup
     return [(a, b, n) for (a, b), n in ranked[:top]]
 
 
-def save_checkpoint(model: BertForSequenceClassification, tokenizer: BertTokenizer, out_dir: Path) -> None:
+TOKENIZER_FILES = ("tokenizer.json", "tokenizer_config.json", "vocab.txt")
+
+
+def save_checkpoint(
+    model: BertForSequenceClassification,
+    tokenizer: BertTokenizer,
+    out_dir: Path,
+    tokenizer_from: Path | None = None,
+) -> None:
     """Write a standard transformers checkpoint (safetensors only) plus ``vocab.txt``.
 
     transformers 5 does not serialise ``attn_implementation``; the key is added to
     ``config.json`` by hand so that a plain ``from_pretrained`` returns eager attention
-    (and hence attention weights). Callers may still override it.
+    (and hence attention weights). Callers may still override it. A retrained checkpoint
+    copies its starting point's tokenizer files byte for byte (``tokenizer_from``).
     """
     if out_dir.exists():
         shutil.rmtree(out_dir)
     out_dir.mkdir(parents=True)
     model.save_pretrained(out_dir, safe_serialization=True)
-    tokenizer.save_pretrained(out_dir)
-    vocab = sorted(tokenizer.get_vocab().items(), key=lambda item: item[1])
-    (out_dir / "vocab.txt").write_text("".join(f"{token}\n" for token, _ in vocab), encoding="utf-8")
+    if tokenizer_from is not None:
+        for name in TOKENIZER_FILES:
+            shutil.copyfile(tokenizer_from / name, out_dir / name)
+    else:
+        tokenizer.save_pretrained(out_dir)
+        vocab = sorted(tokenizer.get_vocab().items(), key=lambda item: item[1])
+        (out_dir / "vocab.txt").write_text("".join(f"{token}\n" for token, _ in vocab), encoding="utf-8")
     config_path = out_dir / "config.json"
     config = json.loads(config_path.read_text(encoding="utf-8"))
     config["attn_implementation"] = "eager"
@@ -295,15 +362,39 @@ def render_card(
     pairs: Sequence[tuple[str, str, int]],
     n_params: int,
     seconds: float,
+    name: str = "ferry_intents",
+    switched: int = 0,
 ) -> str:
-    """Render the model card as Markdown."""
+    """Render the model card as Markdown (``switched``: heads switched off in a retrained checkpoint)."""
     misfire_rows = "\n".join(
         f"| {i} | {markdown_cell(p.text)} | {p.expected} | {p.predicted} | {p.confidence:.2f} |"
         for i, p in enumerate(misfires, start=1)
     )
     pair_rows = "\n".join(f"| {a} | {b} | {n} |" for a, b, n in pairs)
     settings_rows = "\n".join(f"| {key} | {value} |" for key, value in asdict(settings).items())
-    return f"""# ferry_intents: sample intent classifier for Tidewren Ferries
+    rerun_note = (
+        ""
+        if settings.init_from
+        else " The `tokenizers` WordPiece trainer\nbreaks ties between equally frequent pieces in an unseeded "
+        "order, so a rerun can land about\none percentage point away from the numbers below."
+    )
+    if settings.init_from:
+        origin = (
+            f"Retrained from `{settings.init_from}` (same tokenizer, same labels) for {settings.epochs} "
+            f"epoch(s) at a peak learning rate of {settings.learning_rate:g}"
+            + (
+                f", with {switched} of {settings.num_layers * settings.num_heads} heads switched off for good "
+                f"(listed in `switched_off.json` beside this card; their columns of the attention output projection are "
+                "zero and were held at zero while training, so they contribute nothing)"
+                if switched
+                else ""
+            )
+            + ". It exists to be compared with its starting point: `headcount compare`."
+        )
+        architecture = f"`BertForSequenceClassification`. {origin}"
+    else:
+        architecture = "`BertForSequenceClassification` trained from scratch (no pre-training):"
+    return f"""# {name}: sample intent classifier for Tidewren Ferries
 
 **Note: the data is invented for demonstration.** Tidewren Ferries, the Saltmarrow Sound,
 its harbours (Quillhaven, Marrowby, Tolland Isle, ...) and its Wrenpoints loyalty scheme
@@ -334,7 +425,7 @@ Generated by `sample_models/scripts/make_data.py` (seeded) into `sample_models/d
 
 ## Architecture
 
-`BertForSequenceClassification` trained from scratch (no pre-training):
+{architecture}
 {settings.num_layers} layers x {settings.num_heads} heads, hidden size {settings.hidden_size},
 intermediate size {settings.intermediate_size}, max {settings.max_length} positions,
 {n_params:,} parameters, eager attention. Tokenizer: lower-casing WordPiece with
@@ -345,9 +436,7 @@ intermediate size {settings.intermediate_size}, max {settings.max_length} positi
 
 `sample_models/scripts/train.py`: AdamW, linear warm-up then linear decay, cross-entropy,
 gradient clipping at 1.0, CPU with {settings.threads} threads; Python, NumPy and torch
-seeded. Training took {seconds:.0f} s on the build machine. The `tokenizers` WordPiece trainer
-breaks ties between equally frequent pieces in an unseeded order, so a rerun can land about
-one percentage point away from the numbers below.
+seeded. Training took {seconds:.0f} s on the build machine.{rerun_note}
 
 | setting | value |
 | --- | --- |
@@ -380,9 +469,24 @@ Most frequent confusions:
 
 ```bash
 .venv/bin/python sample_models/scripts/make_data.py
-.venv/bin/python sample_models/scripts/train.py
+.venv/bin/python sample_models/scripts/train.py{retrain_options(settings, name)}
 ```
 """
+
+
+def retrain_options(settings: Settings, name: str) -> str:
+    """The command-line options that retrain a checkpoint the way ``settings`` say ('' from scratch)."""
+    if not settings.init_from:
+        return ""
+    parts = [f"--init-from {settings.init_from}"]
+    if settings.switched_off:
+        parts.append(f"--switch-off {settings.switched_off}")
+    parts += [
+        f"--epochs {settings.epochs}",
+        f"--learning-rate {settings.learning_rate:g}",
+        f"--out-dir sample_models/{name}",
+    ]
+    return " \\\n    " + " \\\n    ".join(parts)
 
 
 def parse_args(argv: Sequence[str] | None) -> tuple[Settings, Path]:
@@ -391,9 +495,53 @@ def parse_args(argv: Sequence[str] | None) -> tuple[Settings, Path]:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--epochs", type=int, default=defaults.epochs)
     parser.add_argument("--seed", type=int, default=defaults.seed)
+    parser.add_argument("--learning-rate", type=float, default=defaults.learning_rate)
     parser.add_argument("--out-dir", type=Path, default=OUT_DIR)
+    parser.add_argument(
+        "--init-from", type=Path, default=None, help="retrain this checkpoint (its tokenizer is kept)"
+    )
+    parser.add_argument(
+        "--switch-off",
+        type=Path,
+        default=None,
+        metavar="MASK.json",
+        help='heads to switch off for good, as {"layer": [head, ...]} (needs --init-from)',
+    )
     args = parser.parse_args(argv)
-    return replace(defaults, epochs=args.epochs, seed=args.seed), args.out_dir
+    if args.switch_off is not None and args.init_from is None:
+        parser.error("--switch-off needs --init-from")
+    settings = replace(
+        defaults,
+        epochs=args.epochs,
+        seed=args.seed,
+        learning_rate=args.learning_rate,
+        init_from=_relative(args.init_from),
+        switched_off=_relative(args.switch_off),
+    )
+    return settings, args.out_dir
+
+
+def _relative(path: Path | None) -> str:
+    """``path`` relative to the project (as recorded in the model card), or ''."""
+    if path is None:
+        return ""
+    try:
+        return str(path.resolve().relative_to(SAMPLE_DIR.parent))
+    except ValueError:
+        return str(path)
+
+
+def _from_checkpoint(settings: Settings, config: BertConfig) -> Settings:
+    """Record the architecture a retrained checkpoint really has."""
+    return replace(
+        settings,
+        vocab_size=config.vocab_size,
+        hidden_size=config.hidden_size,
+        num_layers=config.num_hidden_layers,
+        num_heads=config.num_attention_heads,
+        intermediate_size=config.intermediate_size,
+        max_length=config.max_position_embeddings,
+    )
 
 
 def main(argv: Sequence[str] | None = None) -> None:
@@ -406,8 +554,18 @@ def main(argv: Sequence[str] | None = None) -> None:
     labels = sorted(set(train_labels))
 
     started = time.perf_counter()
-    tokenizer = build_tokenizer(train_wordpiece(train_texts, settings.vocab_size), settings.max_length)
-    model = build_model(settings, len(tokenizer), labels)
+    switched, mask = 0, None
+    if settings.init_from:
+        model, tokenizer = load_start(SAMPLE_DIR.parent / settings.init_from)
+        if [model.config.id2label[i] for i in range(len(model.config.id2label))] != labels:
+            raise SystemExit(f"{settings.init_from}: its labels differ from the training split's")
+        if settings.switched_off:
+            mask = read_mask(SAMPLE_DIR.parent / settings.switched_off)
+            switched = switch_off_heads(model, mask)
+        settings = _from_checkpoint(settings, model.config)
+    else:
+        tokenizer = build_tokenizer(train_wordpiece(train_texts, settings.vocab_size), settings.max_length)
+        model = build_model(settings, len(tokenizer), labels)
     label2id = model.config.label2id
     train_model(model, tokenizer, train_texts, [label2id[x] for x in train_labels], settings)
     seconds = time.perf_counter() - started
@@ -417,7 +575,10 @@ def main(argv: Sequence[str] | None = None) -> None:
     metrics = compute_metrics(eval_labels, predicted)
     predictions = [Prediction(*row) for row in zip(eval_texts, eval_labels, predicted, confidences)]
 
-    save_checkpoint(model, tokenizer, out_dir)
+    start_dir = SAMPLE_DIR.parent / settings.init_from if settings.init_from else None
+    save_checkpoint(model, tokenizer, out_dir, tokenizer_from=start_dir)
+    if mask is not None:  # kept beside the checkpoint (the folder was emptied before saving)
+        (out_dir / "switched_off.json").write_text(json.dumps(mask, indent=2) + "\n", encoding="utf-8")
     (out_dir / "metrics.json").write_text(json.dumps(metrics, indent=2) + "\n", encoding="utf-8")
     card = render_card(
         settings,
@@ -428,6 +589,8 @@ def main(argv: Sequence[str] | None = None) -> None:
         confusion_pairs(predictions),
         model.num_parameters(),
         seconds,
+        name=out_dir.name,
+        switched=switched,
     )
     (out_dir / "README.md").write_text(card, encoding="utf-8")
     print(json.dumps({**metrics, "train_seconds": round(seconds, 1)}))
