@@ -28,13 +28,18 @@ from PySide6.QtWidgets import (
 from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel, load_checkpoint
 from inspector.checkpoint.masks import HeadMask
+from inspector.comparison.pairing import check_comparable
+from inspector.comparison.sentence import SentenceComparison, compare_analyses
+from inspector.errors import HeadcountError
 from inspector.figures.sentence import CAUTION
 from inspector.measures.analysis import Prediction, SentenceAnalysis, analyze_sentence, predict_sentence
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
+from ui.compare.view import ComparisonView
 from ui.corpus.page import CorpusPage
 from ui.explain.page import ExplainPage
 from ui.sentence.export import EXPORT_KINDS, build_export
 from ui.sentence.page import SentencePageWidget
+from ui.sentence.second_model import comparison_export
 from ui.sentence.state import SOURCES
 from ui.widgets.export import ExportController
 from ui.widgets.panel import MessageBar
@@ -47,6 +52,7 @@ STARTER_SENTENCE = "can I bring my dog on the evening crossing to Orlestow"
 
 SHORTCUTS_HELP = """<table cellspacing=4>
 <tr><td><b>Ctrl+O</b></td><td>Open a model folder</td></tr>
+<tr><td><b>Ctrl+Shift+O</b></td><td>Compare with a second model (or Shift+drop its folder on the window)</td></tr>
 <tr><td><b>Ctrl+L</b></td><td>Go to the sentence entry</td></tr>
 <tr><td><b>Ctrl+1 \u2026 Ctrl+4</b></td><td>Go to head mosaic, close-up, token arcs, relevance band</td></tr>
 <tr><td><b>Arrow keys</b></td><td>In the mosaic: move the selected head</td></tr>
@@ -104,6 +110,24 @@ def analyse_with_mask(
     return result, full
 
 
+def analyse_pair(
+    lm: LoadedModel, lm_b: LoadedModel | None, text: str, mask: HeadMask, full: Prediction | None
+) -> tuple[SentenceAnalysis, Prediction | None, SentenceComparison | str | None]:
+    """Analyse ``text`` with the open model (heads in ``mask`` off) and, when a second model is open,
+    compare B with A as shown (worker thread).
+
+    Returns A's analysis, A's full-model prediction (see :func:`analyse_with_mask`) and the comparison
+    (None without a second model; the error text when the two could not be compared on this sentence).
+    """
+    analysis, full = analyse_with_mask(lm, text, mask, full)
+    if lm_b is None:
+        return analysis, full, None
+    try:
+        return analysis, full, compare_analyses(analysis, analyse_interactively(lm_b, text))
+    except HeadcountError as exc:
+        return analysis, full, str(exc)
+
+
 class MainWindow(QMainWindow):
     """Headcount's window."""
 
@@ -117,6 +141,8 @@ class MainWindow(QMainWindow):
         self.settings = settings if settings is not None else QSettings("Headcount", "Headcount")
         self.runner = JobRunner(self)
         self.lm: LoadedModel | None = None
+        self.lm_b: LoadedModel | None = None
+        """The second model, compared with the first on every sentence and on the Comparison tab."""
         self._loading: Path | None = None
 
         self.message_bar = MessageBar(self)
@@ -142,6 +168,8 @@ class MainWindow(QMainWindow):
         self.add_page("Explain", self.explain_page)
         self.corpus_page = CorpusPage(self.runner, self.settings, self)
         self.add_page("Corpus", self.corpus_page)
+        self.compare_view = ComparisonView(self.runner, self.settings, self.corpus_page.request, self)
+        self.corpus_page.tabs.addTab(self.compare_view, "Co&mparison")
 
         body = QHBoxLayout()
         body.setContentsMargins(0, 0, 0, 0)
@@ -179,6 +207,7 @@ class MainWindow(QMainWindow):
         self.explain_page.error.connect(self.show_error)
         self.exporter.finished.connect(self._export_done)
         self._connect_corpus()
+        self._connect_comparison()
         self.exporter.failed.connect(lambda text: self.show_error(f"Export failed: {text}"))
         self.resize(1360, 880)
 
@@ -215,6 +244,18 @@ class MainWindow(QMainWindow):
         self.recent_menu = file_menu.addMenu("Open &recent")
         self._fill_recent()
         file_menu.addSeparator()
+        self._action(
+            file_menu,
+            "Compare &with a second model\u2026",
+            self.choose_second_model,
+            "Ctrl+Shift+O",
+            "Open a second checkpoint beside the first (same tokenizer) and compare them",
+        )
+        self.close_second_action = self._action(
+            file_menu, "Close the &second model", self.close_second_model, tip="Stop comparing"
+        )
+        self.close_second_action.setEnabled(False)
+        file_menu.addSeparator()
         self._action(file_menu, "&Quit", self.close, "Ctrl+Q")
 
         export_menu = bar.addMenu("E&xport")
@@ -238,6 +279,18 @@ class MainWindow(QMainWindow):
             "E&xplanation\u2026",
             self.explain_page.export_current,
             tip="The Explain page as PNG, SVG or PDF, with a CSV of every word's relevances",
+        )
+        self._action(
+            export_menu,
+            "Model &comparison (this sentence)\u2026",
+            self.export_sentence_comparison,
+            tip="With a second model open: how much each head changed, as a figure with a CSV of every head",
+        )
+        self._action(
+            export_menu,
+            "Comparison &report (labelled set)\u2026",
+            self.compare_view.export_current,
+            tip="The Comparison tab's files: comparison.json, fixed.csv, broken.csv, head_changes.csv, figures",
         )
         export_menu.addSeparator()
         self._action(
@@ -324,6 +377,14 @@ class MainWindow(QMainWindow):
         self.show_page(self.sentence_page)
         self.sentence_page.set_mask(mask)
 
+    def _connect_comparison(self) -> None:
+        view, page = self.compare_view, self.sentence_page
+        view.open_sentence.connect(self.open_sentence)
+        view.status.connect(lambda text: self.statusBar().showMessage(text, 8000))
+        view.error.connect(self.show_error)
+        page.second_closed.connect(self.close_second_model)
+        page.second_dropped.connect(self.open_second_model)
+
     def _focus(self, widget: QWidget) -> None:
         self.show_page(self.sentence_page)
         widget.setFocus(Qt.FocusReason.ShortcutFocusReason)
@@ -379,13 +440,14 @@ class MainWindow(QMainWindow):
         self.runner.cancel("flow")
         self.sentence_page.set_model(lm)
         self.setWindowTitle(f"{lm.name} \u2014 Headcount")
-        kind = {"sequence-classification": fmt.count(len(lm.labels), "label"), "encoder": "bare encoder"}.get(
-            lm.task, lm.task
-        )
-        self.model_label.setText(
-            f"{lm.name} \u00b7 {lm.model_type} \u00b7 {fmt.count(lm.num_layers, 'layer')} \u00d7 "
-            f"{fmt.count(lm.num_heads, 'head')} \u00b7 {kind}"
-        )
+        if self.lm_b is not None:
+            try:
+                check_comparable(lm, self.lm_b)
+                self._set_second(self.lm_b)
+            except HeadcountError as exc:
+                self._set_second(None)
+                self.show_error(f"Stopped comparing: {exc}")
+        self._show_model_label()
         self._remember(lm.path)
         entry = self.sentence_page.bar.entry
         if not entry.text().strip():
@@ -394,6 +456,76 @@ class MainWindow(QMainWindow):
             entry.blockSignals(False)
         self.analyse(entry.text())
         self.model_loaded.emit(lm)
+
+    def choose_second_model(self) -> None:
+        if self.lm is None:
+            self.show_error("Open a model first (Ctrl+O); the second one is compared with it")
+            return
+        start = str(self.settings.value("open/folder", str(Path.home())))
+        folder = QFileDialog.getExistingDirectory(self, "Open a second model to compare with", start)
+        if folder:
+            self.settings.setValue("open/folder", str(Path(folder).parent))
+            self.open_second_model(folder)
+
+    def open_second_model(self, folder: str | Path) -> None:
+        """Load a second checkpoint in the background and compare it with the open one."""
+        lm = self.lm
+        if lm is None:
+            self.show_error("Open a model first (Ctrl+O); the second one is compared with it")
+            return
+        path = Path(folder).expanduser()
+        self.message_bar.hide()
+        self.busy_label.setText(f"Opening {path.name} to compare\u2026")
+
+        def load() -> LoadedModel:
+            second = load_checkpoint(path)
+            check_comparable(lm, second)
+            return second
+
+        self.runner.submit(
+            "load_b",
+            load,
+            lambda second: self._second_ready(lm, second),
+            lambda text: self.show_error(f"Could not compare with {path.name}: {text}"),
+        )
+
+    def _second_ready(self, lm: LoadedModel, second: object) -> None:
+        assert isinstance(second, LoadedModel)
+        if lm is not self.lm:
+            return  # the first model changed meanwhile
+        self._set_second(second)
+        self.statusBar().showMessage(f"Comparing {lm.name} (A) with {second.name} (B)", 8000)
+        self.analyse(self.sentence_page.bar.entry.text())
+
+    def close_second_model(self) -> None:
+        """Stop comparing: forget the second model."""
+        self._set_second(None)
+        if self.lm is not None:
+            self.analyse(self.sentence_page.bar.entry.text())
+
+    def _set_second(self, second: LoadedModel | None) -> None:
+        self.lm_b = second
+        self.close_second_action.setEnabled(second is not None)
+        self.sentence_page.set_second_model(
+            self.lm.name if self.lm else None, second.name if second is not None else None
+        )
+        self.compare_view.set_models(self.lm, second)
+        self._show_model_label()
+
+    def _show_model_label(self) -> None:
+        lm = self.lm
+        if lm is None:
+            return
+        kind = {"sequence-classification": fmt.count(len(lm.labels), "label"), "encoder": "bare encoder"}.get(
+            lm.task, lm.task
+        )
+        text = (
+            f"{lm.name} \u00b7 {lm.model_type} \u00b7 {fmt.count(lm.num_layers, 'layer')} \u00d7 "
+            f"{fmt.count(lm.num_heads, 'head')} \u00b7 {kind}"
+        )
+        if self.lm_b is not None:
+            text = f"A: {text}   B: {self.lm_b.name}"
+        self.model_label.setText(text)
 
     def _model_failed(self, path: Path, text: str) -> None:
         self._loading = None
@@ -418,18 +550,23 @@ class MainWindow(QMainWindow):
             page.set_model(lm)
             return
         mask, full = page.state.mask, page.state.known_full_prediction(text)
+        lm_b = self.lm_b
         self.runner.submit(
             "analysis",
-            lambda: analyse_with_mask(lm, text, mask, full),
-            lambda result: self._analysis_ready(lm, result),
+            lambda: analyse_pair(lm, lm_b, text, mask, full),
+            lambda result: self._analysis_ready(lm, lm_b, result),
             lambda msg: self.show_error(f"Could not analyse the sentence: {msg}"),
         )
 
-    def _analysis_ready(self, lm: LoadedModel, result: object) -> None:
-        if lm is not self.lm:
-            return  # the model changed while this sentence was being analysed
-        analysis, full = result
-        self.sentence_page.apply_analysis(analysis, full)
+    def _analysis_ready(self, lm: LoadedModel, lm_b: LoadedModel | None, result: object) -> None:
+        if lm is not self.lm or lm_b is not self.lm_b:
+            return  # a model changed while this sentence was being analysed
+        analysis, full, comparison = result
+        page = self.sentence_page
+        page.pair.set_comparison(comparison if isinstance(comparison, SentenceComparison) else None)
+        page.apply_analysis(analysis, full)
+        if isinstance(comparison, str):
+            page.second_failed(comparison)
 
     def _mask_changed(self, mask: HeadMask) -> None:
         """Heads were switched off or on: analyse the sentence again at once, and tell the Explain page."""
@@ -470,6 +607,9 @@ class MainWindow(QMainWindow):
     # -- export ------------------------------------------------------------------------------------
     def export_focused(self) -> None:
         current = self.pages.currentWidget()
+        if current is self.corpus_page and self.corpus_page.tabs.currentWidget() is self.compare_view:
+            self.compare_view.export_current()
+            return
         if current is not self.sentence_page and hasattr(current, "export_current"):
             current.export_current()  # another page exports what it shows
             return
@@ -482,6 +622,14 @@ class MainWindow(QMainWindow):
         }
         widget = self.focusWidget()
         self.exporter.ask(kinds.get(id(widget), "closeup"))
+
+    def export_sentence_comparison(self) -> None:
+        try:
+            job = comparison_export(self.sentence_page.pair)
+        except ValueError as exc:
+            self.show_error(str(exc))
+            return
+        self.exporter.ask_for(job, "Model comparison")
 
     def _export_done(self, paths: list) -> None:
         names = " and ".join(Path(p).name for p in paths)
@@ -506,6 +654,8 @@ class MainWindow(QMainWindow):
             self.busy_label.setText("Explaining\u2026")
         elif busy and channel == "corpus":
             self.busy_label.setText("Analysing the corpus\u2026")
+        elif busy and channel == "compare":
+            self.busy_label.setText("Comparing the two models\u2026")
 
     # -- recent models -----------------------------------------------------------------------------
     def recent_models(self) -> list[str]:
@@ -557,7 +707,10 @@ class MainWindow(QMainWindow):
         folder = self._dropped_folder(event)
         if folder is not None:
             event.acceptProposedAction()
-            self.open_model(folder)
+            if event.modifiers() & Qt.KeyboardModifier.ShiftModifier and self.lm is not None:
+                self.open_second_model(folder)  # Shift+drop: compare with the open model
+            else:
+                self.open_model(folder)
 
     def keyPressEvent(self, event) -> None:
         if event.key() == Qt.Key.Key_Escape and self.message_bar.isVisible():
@@ -569,6 +722,7 @@ class MainWindow(QMainWindow):
         self.runner.cancel("analysis")
         self.runner.cancel("flow")
         self.corpus_page.stop()
+        self.compare_view.stop()
         self.runner.wait(30000)
         super().closeEvent(event)
 

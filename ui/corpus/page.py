@@ -25,7 +25,6 @@ from pathlib import Path
 from PySide6.QtCore import QObject, QSettings, Qt, Signal
 from PySide6.QtGui import QKeySequence, QShortcut
 from PySide6.QtWidgets import (
-    QAbstractItemView,
     QCheckBox,
     QComboBox,
     QDoubleSpinBox,
@@ -38,8 +37,6 @@ from PySide6.QtWidgets import (
     QPushButton,
     QSpinBox,
     QSplitter,
-    QTableWidget,
-    QTableWidgetItem,
     QTabWidget,
     QVBoxLayout,
     QWidget,
@@ -78,6 +75,8 @@ from ui.widgets.legend import ColourKey
 from ui.widgets.mask_files import MaskFiles
 from ui.widgets.matrix_map import MatrixMap
 from ui.widgets.panel import Panel, buddy_label, column, control_grid
+from ui.widgets.tables import make_table as _table
+from ui.widgets.tables import table_cell as _cell
 from ui.widgets.worker import MODEL_LOCK, JobRunner
 
 CHANNEL = "corpus"
@@ -94,27 +93,6 @@ class _Progress(QObject):
     progress = Signal(int, int, int)
     """run number, batches done, batches in all."""
     phase = Signal(int, str)
-
-
-def _table(parent: QWidget, header: tuple[str, ...], name: str) -> QTableWidget:
-    table = QTableWidget(0, len(header), parent)
-    table.setHorizontalHeaderLabels(list(header))
-    table.setAccessibleName(name)
-    table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
-    table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
-    table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
-    table.verticalHeader().setVisible(False)
-    table.setAlternatingRowColors(True)
-    return table
-
-
-def _cell(text: str, align_right: bool = False, tip: str = "") -> QTableWidgetItem:
-    item = QTableWidgetItem(text)
-    if align_right:
-        item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-    if tip:
-        item.setToolTip(tip)
-    return item
 
 
 def _two_over_one(

@@ -13,8 +13,8 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-from PySide6.QtCore import QPoint, QRect, QSize, Qt, Signal
-from PySide6.QtGui import QColor, QFont, QImage, QKeyEvent, QMouseEvent, QPainter, QPalette, QPen
+from PySide6.QtCore import QPoint, QPointF, QRect, QSize, Qt, Signal
+from PySide6.QtGui import QColor, QFont, QImage, QKeyEvent, QMouseEvent, QPainter, QPalette, QPen, QPolygonF
 from PySide6.QtWidgets import QWidget
 
 from inspector import formatting as fmt
@@ -196,6 +196,9 @@ class HeadGrid(HoverView):
         self._image: QImage | None = None
         self.rebuilds = 0
         """How many times the mosaic image was rebuilt (for tests and the benchmark)."""
+        self.overlay: np.ndarray | None = None
+        """[layers, heads] non-negative change per head drawn as corner wedges (NaN: none), or None."""
+        self._overlay_peak = 1.0
 
     # -- data --------------------------------------------------------------------------------------
     def set_data(
@@ -221,6 +224,29 @@ class HeadGrid(HoverView):
         self.attention = self.metric_values = self._meter = None
         self._version += 1
         self.update()
+
+    def set_overlay(self, values: np.ndarray | None, peak: float = 1.0) -> None:
+        """Mark each head with a wedge in its top-right corner whose area grows with ``values / peak``.
+
+        Used for the change of each head against a second model; NaN or 0 draws no wedge.
+        """
+        self.overlay = None if values is None else np.asarray(values, dtype=np.float64)
+        self._overlay_peak = peak if peak > 0 else 1.0
+        self.update()
+
+    def overlay_wedges(self, geo: GridGeometry) -> list[tuple[int, int, int]]:
+        """(layer, head, leg length in pixels) of every wedge drawn: area proportional to the value."""
+        if self.overlay is None:
+            return []
+        out = []
+        layers, heads = min(self.overlay.shape[0], geo.layers), min(self.overlay.shape[1], geo.heads)
+        for layer in range(layers):
+            for head in range(heads):
+                v = self.overlay[layer, head]
+                if np.isfinite(v) and v > 0:
+                    share = min(v / self._overlay_peak, 1.0)
+                    out.append((layer, head, max(3, int(round(np.sqrt(share) * geo.cell * 0.5)))))
+        return out
 
     def set_selection(self, layer: int, head: int) -> None:
         if (layer, head) != self._selected:
@@ -410,6 +436,16 @@ class HeadGrid(HoverView):
 
     def _draw_marks(self, p: QPainter, geo: GridGeometry) -> None:
         pal = self.palette()
+        wedges = self.overlay_wedges(geo)
+        if wedges:
+            p.setPen(QPen(pal.color(QPalette.ColorRole.Window), 1))
+            p.setBrush(pal.color(QPalette.ColorRole.WindowText))
+            for layer, head, leg in wedges:
+                r = geo.cell_rect(layer, head)
+                right, top = r.x() + r.width(), r.y()
+                p.drawPolygon(
+                    QPolygonF([QPointF(right, top), QPointF(right - leg, top), QPointF(right, top + leg)])
+                )
         if self._hover is not None and self._hover != self._selected:
             pen = QPen(pal.color(QPalette.ColorRole.WindowText), 1, Qt.PenStyle.DashLine)
             p.setPen(pen)

@@ -11,9 +11,11 @@ from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (
     QComboBox,
     QDoubleSpinBox,
+    QHBoxLayout,
     QLabel,
     QMenu,
     QScrollArea,
+    QSizePolicy,
     QSplitter,
     QToolButton,
     QVBoxLayout,
@@ -30,13 +32,25 @@ from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
 from ui.sentence.bar import SentenceBar
 from ui.sentence.close_up import CloseUp
 from ui.sentence.head_grid import HeadGrid
+from ui.sentence.pair_state import PairState
 from ui.sentence.relevance_band import RelevanceBand
+from ui.sentence.second_model import SecondModelStrip
 from ui.sentence.state import LINK_MODES, RELEVANCE_SOURCES, SOURCES, SentencePage, metric_range
 from ui.sentence.token_arcs import TokenArcs
 from ui.widgets.legend import ColourKey, MeterKey
 from ui.widgets.mask_files import MaskFiles
 from ui.widgets.panel import Panel, column
 from ui.widgets.worker import JobRunner
+
+
+def column_layout(items: list) -> QVBoxLayout:
+    """A vertical layout of widgets, each given as a widget or ``(widget, stretch)``."""
+    layout = QVBoxLayout()
+    layout.setSpacing(2)
+    for item in items:
+        widget, stretch = item if isinstance(item, tuple) else (item, 0)
+        layout.addWidget(widget, stretch)
+    return layout
 
 
 def _combo(parent: QWidget, items: dict[str, str], name: str) -> QComboBox:
@@ -59,6 +73,10 @@ class SentencePageWidget(QWidget):
     """A problem the user can fix (a mask that does not fit the model ...)."""
     mask_changed = Signal(object)
     """The heads switched off changed (a HeadMask): the sentence should be analysed again now."""
+    second_closed = Signal()
+    """The user closed the second model (B)."""
+    second_dropped = Signal(str)
+    """A checkpoint folder was dropped on the comparison strip: open it as B."""
 
     def __init__(
         self, runner: JobRunner, parent: QWidget | None = None, settings: QSettings | None = None
@@ -72,9 +90,17 @@ class SentencePageWidget(QWidget):
         self.masks = MaskFiles(runner, settings, self)
         self.masks.status.connect(self.status.emit)
         self.masks.error.connect(self.error.emit)
+        self._a_predicts = True
+        self.pair = PairState()
+        """The second model (B) and its comparison with the open one, when B is open."""
+        self._grid_b_input: tuple | None = None
 
         self.bar = SentenceBar(self)
         self.grid = HeadGrid(self)
+        self.grid_b = HeadGrid(self)
+        self.grid_b.setAccessibleName("Head mosaic of the second model")
+        self.second = SecondModelStrip(self)
+        self.second.hide()
         self.closeup = CloseUp(self)
         self.arcs = TokenArcs(self)
         self.band = RelevanceBand(self)
@@ -99,6 +125,8 @@ class SentencePageWidget(QWidget):
         explain_button = QToolButton(self.bar)
         explain_button.setDefaultAction(self.explain_action)
         self.bar.layout().addWidget(explain_button, 1, 3, Qt.AlignmentFlag.AlignRight)
+        # The comparison strip is the bar's last row (hidden unless a second model is open).
+        self.bar.layout().addWidget(self.second, 3, 0, 1, 4)
 
         self._mask_actions()
         self._heads_controls()
@@ -139,6 +167,11 @@ class SentencePageWidget(QWidget):
         self.grid.layer_toggle_requested.connect(self.toggle_layer)
         self.grid.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
         self.grid.customContextMenuRequested.connect(self._grid_menu)
+        self.grid_b.head_clicked.connect(self.select_head)
+        self.grid_b.move_requested.connect(self.move_head)
+        self.grid_b.hovered.connect(self._grid_b_hover)
+        self.second.closed.connect(self.second_closed.emit)
+        self.second.folder_dropped.connect(self.second_dropped.emit)
         for view in (self.closeup, self.arcs):
             view.query_clicked.connect(self.set_query)
             view.query_move.connect(self.move_query)
@@ -280,8 +313,24 @@ class SentencePageWidget(QWidget):
         menu.exec(self.grid.mapToGlobal(pos))
 
     # -- panels ------------------------------------------------------------------------------------
+    def _mosaic_body(self) -> QWidget:
+        """Model A's mosaic, and beside it model B's while a second model is open."""
+        body = QWidget(self)
+        row = QHBoxLayout(body)
+        row.setContentsMargins(0, 0, 0, 0)
+        row.setSpacing(10)
+        self.grid_captions: list[QLabel] = []
+        for grid in (self.grid, self.grid_b):
+            caption = QLabel("", body)
+            caption.setContentsMargins(4, 0, 0, 0)
+            caption.hide()
+            self.grid_captions.append(caption)
+            row.addLayout(column_layout([caption, (grid, 1)]), 1)
+        self.grid_b.hide()
+        return body
+
     def _mosaic_panel(self) -> Panel:
-        panel = Panel("Head mosaic", self.grid, self)
+        panel = Panel("Head mosaic", self._mosaic_body(), self)
         self.metric_box = _combo(panel, {n: METRIC_LABELS[n] for n in METRIC_NAMES}, "Meter metric")
         self.metric_box.setCurrentIndex(METRIC_NAMES.index(self.state.options.metric))
         self.metric_box.currentIndexChanged.connect(
@@ -300,6 +349,11 @@ class SentencePageWidget(QWidget):
         keys.addWidget(self.colour_key)
         keys.addWidget(self.meter_key)
         panel.footer.addLayout(keys)
+        self.wedge_key = QLabel("", panel)
+        self.wedge_key.setWordWrap(True)
+        self.wedge_key.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.wedge_key.hide()
+        panel.footer.addWidget(self.wedge_key, 1)
         return panel
 
     def _heads_controls(self) -> None:
@@ -376,6 +430,7 @@ class SentencePageWidget(QWidget):
         self.grid.set_off(set())
         self.lm = lm
         self.state.set_full_prediction("", None)
+        self._a_predicts = lm.has_prediction
         self.bar.set_labels(lm.labels, lm.has_prediction)
         if self.state.expected:
             self.bar.set_expected(self.state.expected)
@@ -386,6 +441,9 @@ class SentencePageWidget(QWidget):
         self.state.set_analysis(None)
         self._grid_input = None
         self.grid.clear(note)
+        self.grid_b.clear(note)
+        self._grid_b_input = None
+        self.pair.set_comparison(None)
         self.closeup.set_data(None, [], [], note=note)
         self.arcs.set_data(None, [], [], query=0, mode="query", threshold=0.1, note=note)
         self.band.set_data(None, [], [], note=note)
@@ -440,11 +498,78 @@ class SentencePageWidget(QWidget):
     def _expected_changed(self, label: str | None) -> None:
         self.state.expected = label
         self._refresh_prediction()
+        if self.pair.ready:
+            self.second.set_lines(*self.pair.strip_lines(label))
 
     def _grid_hover(self, layer: int, head: int) -> None:
         if layer >= 0 and self.state.ready:
-            values = self.state.head_summary(layer, head).replace("\n", "  \u00b7  ")
+            values = self._summary_a(layer, head).replace("\n", "  \u00b7  ")
             self.status.emit(values)
+
+    def _grid_b_hover(self, layer: int, head: int) -> None:
+        if layer >= 0 and self.pair.ready:
+            self.status.emit(self._summary_b(layer, head).replace("\n", "  \u00b7  "))
+
+    def _summary_a(self, layer: int, head: int) -> str:
+        text = self.state.head_summary(layer, head)
+        return f"{text}\n{self.pair.hover_a(layer, head)}" if self.pair.ready else text
+
+    def _summary_b(self, layer: int, head: int) -> str:
+        return self.pair.hover_b(layer, head, self.state.options.metric)
+
+    # -- the second model (B) ----------------------------------------------------------------------
+    def set_second_model(self, name_a: str | None, name_b: str | None) -> None:
+        """Show (``name_b``) or hide (None) the second model's strip and mosaic; forget the old comparison."""
+        self.pair.set_models(name_a or "", name_b or "")
+        self._grid_b_input = None
+        on = bool(name_b)
+        self.second.setVisible(on)
+        self.grid_b.setVisible(on)
+        for caption in self.grid_captions:
+            caption.setVisible(on)
+        self.grid.set_overlay(None)
+        self.grid_b.set_overlay(None)
+        self.wedge_key.setVisible(on)
+        self.bar.encoder_note.setVisible(not on and not self._a_predicts)
+        if on:
+            self.grid_captions[0].setText(f"<b>A</b> \u00b7 {name_a}")
+            self.grid_captions[1].setText(f"<b>B</b> \u00b7 {name_b}")
+            self.second.set_lines(f"B \u00b7 {name_b}: opening\u2026", "")
+            self.grid_b.clear(f"{name_b}: waiting for the sentence")
+
+    def second_failed(self, text: str) -> None:
+        """The comparison of the current sentence failed: say so in B's places."""
+        self.pair.set_comparison(None)
+        self.second.set_lines(f"B \u00b7 {self.pair.name_b}: no comparison", text)
+        self.grid_b.clear(text)
+        self.grid.set_overlay(None)
+
+    def _refresh_second(self) -> None:
+        pair, st = self.pair, self.state
+        if not pair.active:
+            return
+        if not pair.ready:
+            self.grid.set_overlay(None)
+            return
+        heads = pair.head_matrices_b(st.view(), not st.options.words and not st.options.hide_special)
+        metric = pair.comparison.b.head_metrics.get(st.options.metric)
+        key = (id(heads), id(pair.comparison), st.options.metric, st.options.scale)
+        if key != self._grid_b_input:
+            lo, hi = metric_range(st.options.metric, metric)
+            self.grid_b.set_data(
+                heads, metric, (lo, hi), per_head=st.options.scale == "own", summary=self._summary_b
+            )
+            self._grid_b_input = key
+        a = st.analysis
+        peak = pair.peak()
+        self.grid.set_overlay(pair.change_a(a.num_layers, a.num_heads), peak)
+        self.grid_b.set_overlay(pair.change_b(), peak)
+        first, second = pair.strip_lines(st.expected)
+        self.second.set_lines(first, second)
+        self.wedge_key.setText(
+            f"\u25e5 Corner wedge: how much the head changed between A and B (area; largest {peak:.3f} bits "
+            "of Jensen-Shannon divergence). Hover a head for the numbers."
+        )
 
     # -- pushing state into the views --------------------------------------------------------------
     def refresh(self) -> None:
@@ -457,7 +582,7 @@ class SentencePageWidget(QWidget):
         if key != self._grid_input:
             lo, hi = metric_range(st.options.metric, metric)
             self.grid.set_data(
-                heads, metric, (lo, hi), per_head=st.options.scale == "own", summary=st.head_summary
+                heads, metric, (lo, hi), per_head=st.options.scale == "own", summary=self._summary_a
             )
             self._grid_input = key
             self.colour_key.set_text(
@@ -476,6 +601,7 @@ class SentencePageWidget(QWidget):
         top = "max" if rel.values is None else fmt.weight(rel.values.max())
         self.band_key.set_text("Shade: relevance of each token for the prediction,", "0", top)
         self._refresh_prediction()
+        self._refresh_second()
         self.refresh_selection()
         self._request_flow()
 
@@ -485,6 +611,9 @@ class SentencePageWidget(QWidget):
         if not st.ready:
             return
         self.grid.set_selection(st.layer, st.head)
+        if self.pair.ready:
+            m = self.pair.comparison.matching
+            self.grid_b.set_selection(min(st.layer, m.layers_b - 1), min(st.head, m.heads_b - 1))
         focus = st.focus()
         query = st.query_index()
         self.closeup.set_data(focus.matrix, focus.labels, focus.special, query=query, note=focus.note)
