@@ -352,6 +352,7 @@ class SentencePageWidget(QWidget):
         self.wedge_key = QLabel("", panel)
         self.wedge_key.setWordWrap(True)
         self.wedge_key.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.wedge_key.setToolTip("Hover a head in either mosaic for its numbers and B's closest head of A")
         self.wedge_key.hide()
         panel.footer.addWidget(self.wedge_key, 1)
         return panel
@@ -567,8 +568,7 @@ class SentencePageWidget(QWidget):
         first, second = pair.strip_lines(st.expected)
         self.second.set_lines(first, second)
         self.wedge_key.setText(
-            f"\u25e5 Corner wedge: how much the head changed between A and B (area; largest {peak:.3f} bits "
-            "of Jensen-Shannon divergence). Hover a head for the numbers."
+            f"\u25e5 Wedge area = the head's change from A to B (largest {peak:.3f} bits, JS divergence)"
         )
 
     # -- pushing state into the views --------------------------------------------------------------

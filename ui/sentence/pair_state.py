@@ -142,8 +142,13 @@ class PairState:
         if expected and pred is not None:
             mark = "\u2713 as expected" if pred.label == expected else f"\u2715 misfire (expected {expected})"
             verdict = f"{mark} \u00b7 {verdict}"
-        first = f"B \u00b7 {self.name_b}: {prediction_text(pred)}" + (
-            f"   \u2014 {verdict}" if verdict else ""
+        ranked = pred.top(3) if pred is not None else []
+        said = prediction_text(pred, 1)
+        rest = ", ".join(f"{lab} {percent(p)}" for lab, p in ranked[1:])
+        first = (
+            f"B \u00b7 {self.name_b}: {said}"
+            + (f"   \u2014 {verdict}" if verdict else "")
+            + (f"   (then {rest})" if rest else "")
         )
         same = c.matching.same_position
         order = np.argsort(-np.nan_to_num(same, nan=-1.0), axis=None)[:3]
