@@ -241,3 +241,53 @@ def test_the_sentence_comparison_exports_a_figure_and_every_head(qtbot, window, 
     col = rows[0].index("js_same_position")
     assert float(rows[1][col]) == pytest.approx(core.matching.same_position[0, 0], abs=1e-12)
     assert rows[-1][col] == ""
+
+
+def test_comparison_texts_follow_the_display_rules(qtbot, window, folders, capsys, tmp_path):
+    """Every string the comparison shows (strip, hovers, tab cells and tooltips, CLI output) keeps the house forms.
+
+    Reference: the display rules of inspector.formatting, as checked by tests/text_rules.py
+    (one head form, percentages with one decimal, points, counts that agree with their noun).
+    """
+    from inspector.cli.main import main
+    from tests.text_rules import violations
+
+    open_pair(qtbot, window, folders["tiny"], folders["other"])
+    page = window.sentence_page
+    items = [("strip", page.second.text()), ("wedge key", page.wedge_key.text())]
+    items += [(f"hover B {l},{h}", page._summary_b(l, h)) for l in range(3) for h in range(2)]
+    items += [(f"hover A {l},{h}", page._summary_a(l, h)) for l in range(2) for h in range(4)]
+    view = window.compare_view
+    window.corpus_page.path_edit.setText(str(folders["csv"]))
+    with qtbot.waitSignal(view.finished, timeout=WAIT_MS):
+        view.run()
+    items += [
+        ("headline", view.headline.text()),
+        ("phase", view.phase_label.text()),
+        ("moved", view.moved.text()),
+    ]
+    for table in (view.table, view.intents, view.fixed, view.broken):
+        for r in range(table.rowCount()):
+            for c in range(table.columnCount()):
+                item = table.item(r, c)
+                if item is not None:
+                    items += [(f"{table.accessibleName()} {r},{c}", item.text()), ("tooltip", item.toolTip())]
+    m = view.report.matching
+    items += [(f"change map {l},{h}", view.change_map.describe(l, h)) for l in range(3) for h in range(2)]
+    items += [(f"matching {j},{i}", view.matching_map.describe(j, i)) for j in range(6) for i in range(8)]
+    assert m.js.shape == (6, 8)
+    main(["compare", str(folders["tiny"]), str(folders["other"]), "--text", SENTENCE])
+    main(
+        [
+            "compare",
+            str(folders["tiny"]),
+            str(folders["other"]),
+            str(folders["csv"]),
+            "--out",
+            str(tmp_path),
+            "--quiet",
+        ]
+    )
+    items += [("cli", line) for line in capsys.readouterr().out.splitlines()]
+    assert len(items) > 150
+    assert violations(items) == []

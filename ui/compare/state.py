@@ -65,7 +65,7 @@ def headline_html(report: ComparisonReport) -> str:
         f"<b>A</b> {html.escape(report.model_a)} <span style='font-size:14pt'><b>{percent(ev_a.accuracy)}</b></span>"
         f" &nbsp;\u2192&nbsp; <b>B</b> {html.escape(report.model_b)} "
         f"<span style='font-size:14pt'><b>{percent(ev_b.accuracy)}</b></span> accuracy "
-        f"({points(change, signed=True)}) &nbsp;\u00b7&nbsp; macro-F1 {percent(ev_a.macro_f1)} \u2192 "
+        f"&nbsp;\u00b7&nbsp; change {points(change, signed=True)} &nbsp;\u00b7&nbsp; macro-F1 {percent(ev_a.macro_f1)} \u2192 "
         f"{percent(ev_b.macro_f1)} &nbsp;\u00b7&nbsp; the two agree on {percent(report.agreement)} of "
         f"{count(report.total, 'utterance')}"
     )
