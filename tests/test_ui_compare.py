@@ -7,6 +7,7 @@ SciPy and transformers' attention weights).
 
 from __future__ import annotations
 
+import functools
 import json
 from pathlib import Path
 
@@ -67,8 +68,14 @@ def open_pair(qtbot, win, a: Path, b: Path, text: str = SENTENCE) -> None:
     )
 
 
+@functools.cache
+def _loaded(folder: Path):
+    return load_checkpoint(folder)
+
+
 def plain_prediction(folder: Path, text: str) -> str:
-    lm = load_checkpoint(folder)
+    """transformers' own forward pass on one sentence (no padding), arg-max label."""
+    lm = _loaded(folder)
     with torch.no_grad():
         logits = lm.model(**lm.tokenizer(text, return_tensors="pt")).logits[0]
     return lm.labels[int(logits.argmax())]
