@@ -116,7 +116,7 @@ def test_an_exact_copy_shows_no_change(qtbot, window, folders):
     page = window.sentence_page
     assert page.grid_b.overlay_wedges(page.grid_b.grid_geometry()) == []
     assert "8 of 8 heads unchanged" in page.second.text()
-    assert "same label as A" in page.second.text()
+    assert "same as A" in page.second.text()
     window.close_second_model()
     qtbot.waitUntil(lambda: not window.is_busy(), timeout=WAIT_MS)
     assert window.lm_b is None and not page.second.isVisible() and page.grid.overlay is None
@@ -298,3 +298,25 @@ def test_comparison_texts_follow_the_display_rules(qtbot, window, folders, capsy
     items += [("cli", line) for line in capsys.readouterr().out.splitlines()]
     assert len(items) > 150
     assert violations(items) == []
+
+
+def test_heads_switched_off_in_a_are_compared_as_shown(qtbot, window, folders):
+    """With a head of A switched off, B (an exact copy) is compared with A as the page shows it.
+
+    Gating a head of layer 0 leaves every layer-0 attention map as it was and changes what
+    layer 1 receives: layer 0 stays unchanged, layer 1 changes.
+    Reference: construction (a head gate multiplies the head's output, after its attention;
+    Michel et al. 2019), on transformers' BERT forward pass.
+    """
+    open_pair(qtbot, window, folders["tiny"], folders["tiny_copy"])
+    page = window.sentence_page
+    before = page.pair.comparison
+    page.toggle_head(0, 1)
+    qtbot.waitUntil(
+        lambda: page.pair.ready and page.pair.comparison is not before and not window.is_busy(),
+        timeout=WAIT_MS,
+    )
+    m = page.pair.comparison.matching
+    assert page.state.mask.heads == ((0, 1),)
+    assert m.unchanged[0].all() and (m.same_position[0] == 0).all()
+    assert not m.unchanged[1].any() and (m.same_position[1] > 0).all()

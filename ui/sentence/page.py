@@ -125,8 +125,6 @@ class SentencePageWidget(QWidget):
         explain_button = QToolButton(self.bar)
         explain_button.setDefaultAction(self.explain_action)
         self.bar.layout().addWidget(explain_button, 1, 3, Qt.AlignmentFlag.AlignRight)
-        # The comparison strip is the bar's last row (hidden unless a second model is open).
-        self.bar.layout().addWidget(self.second, 3, 0, 1, 4)
 
         self._mask_actions()
         self._heads_controls()
@@ -314,9 +312,13 @@ class SentencePageWidget(QWidget):
 
     # -- panels ------------------------------------------------------------------------------------
     def _mosaic_body(self) -> QWidget:
-        """Model A's mosaic, and beside it model B's while a second model is open."""
+        """Model A's mosaic; while a second model is open, the comparison strip above and B's mosaic beside it.
+
+        The strip lives inside the (stretchable) mosaic panel, so a second model costs the
+        window no height.
+        """
         body = QWidget(self)
-        row = QHBoxLayout(body)
+        row = QHBoxLayout()
         row.setContentsMargins(0, 0, 0, 0)
         row.setSpacing(10)
         self.grid_captions: list[QLabel] = []
@@ -327,6 +329,11 @@ class SentencePageWidget(QWidget):
             self.grid_captions.append(caption)
             row.addLayout(column_layout([caption, (grid, 1)]), 1)
         self.grid_b.hide()
+        outer = QVBoxLayout(body)
+        outer.setContentsMargins(0, 0, 0, 0)
+        outer.setSpacing(4)
+        outer.addWidget(self.second)
+        outer.addLayout(row, 1)
         return body
 
     def _mosaic_panel(self) -> Panel:

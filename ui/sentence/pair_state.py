@@ -17,6 +17,7 @@ import numpy as np
 from inspector.checkpoint.tokens import TokenView, apply_view
 from inspector.comparison.sentence import SentenceComparison
 from inspector.formatting import bits, head_name, number, percent, signed
+from inspector.formatting import count as fmt_count
 from inspector.measures.analysis import Prediction
 from inspector.measures.metrics import METRIC_LABELS
 
@@ -137,7 +138,7 @@ class PairState:
         With an ``expected`` label, B's line says whether B got it right.
         """
         c = self._require()
-        verdict = {True: "same label as A", False: "a different label from A", None: ""}[c.agree]
+        verdict = {True: "same as A", False: "A said otherwise", None: ""}[c.agree]
         pred = c.b.prediction
         if expected and pred is not None:
             mark = "\u2713 as expected" if pred.label == expected else f"\u2715 misfire (expected {expected})"
@@ -162,7 +163,7 @@ class PairState:
         moved = self.moved()
         parts = [
             f"changed most: {top or 'nothing'}",
-            f"{unchanged} of {same.size} heads unchanged",
+            f"{unchanged} of {fmt_count(same.size, 'head')} unchanged",
             f"rollout change {bits(c.rollout_js)}",
         ]
         if moved:

@@ -1,6 +1,6 @@
 """The comparison strip of the sentence page: the second model's prediction and what changed.
 
-Shown under the sentence bar while a second model (B) is open beside the first (A): B's name
+Shown above the two head mosaics while a second model (B) is open beside the first (A): B's name
 and prediction, whether both models agree, the heads that changed most, how many kept exactly
 the same weights, the change of rollout and heads of B that resemble a different head of A.
 A checkpoint folder dropped on the strip replaces B; the close button forgets B.
@@ -54,7 +54,7 @@ class SecondModelStrip(QFrame):
         pal.setColor(QPalette.ColorRole.WindowText, dim_text(self.palette(), 0.8))
         self.second.setPalette(pal)
         for label in (self.first, self.second):
-            label.setWordWrap(False)
+            label.setWordWrap(True)
             label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         close = QToolButton(self)
         close.setText("\u2715")
