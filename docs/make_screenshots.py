@@ -1,6 +1,17 @@
-"""Render screenshots of the window's main views offscreen into docs/.
+"""Render screenshots of the window offscreen into docs/, at a 1366 x 768 laptop size.
 
-Run:  .venv/bin/python docs/make_screenshots.py
+Run:  .venv/bin/python docs/make_screenshots.py [--sizes-only]
+
+1. Long messages: ``window_16.png``, ``window_128.png`` and ``window_512.png`` show
+   the sentence page on a randomly initialised BERT-base-sized classifier (12 layers
+   x 12 heads, hidden 768, built here in a temporary folder with the MiniLM
+   tokenizer; its attention is random) and messages of 16, 128 and 512 tokens made
+   of the ferry evaluation set's utterances run together, like a pasted ticket
+   thread. Each is one ``headcount open MODEL --text ... --screenshot FILE --size
+   1366x768`` command.
+2. The sample model: ``window.png`` and ``corpus.png`` with the same command, then
+   panel close-ups, the explain page with a what-if edit, the corpus page's heads
+   tab, a dark palette and a bad folder, driven in one window.
 
 Uses the bundled sample model and a sentence from the evaluation set that it
 misroutes. If the sample model has not been trained yet, a small randomly
@@ -13,6 +24,7 @@ from __future__ import annotations
 
 import csv
 import os
+import subprocess
 import sys
 import tempfile
 import time
@@ -23,6 +35,16 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 DOCS = ROOT / "docs"
+LAPTOP = (1366, 768)
+LENGTHS = (16, 128, 512)
+BASE_SHAPE = {
+    "hidden_size": 768,
+    "num_hidden_layers": 12,
+    "num_attention_heads": 12,
+    "intermediate_size": 3072,
+}
+"""BERT-base's shape. Its random weights use initializer_range 0.08 (0.02 is BERT's default): with the
+default, random attention at 128+ tokens is nearly uniform and every view looks flat grey."""
 FALLBACK_SENTENCES = [
     ("is the evening sailing to Quillhaven cancelled because of the storm", "disruption_status"),
     ("can my two dogs come on the crossing with me", "pets_on_board"),
@@ -42,6 +64,47 @@ def wait_until(app, condition, timeout: float = 120.0) -> None:
         time.sleep(0.01)
     for _ in range(5):
         app.processEvents()
+
+
+def screenshot(model: Path, out: Path, *args: str) -> None:
+    """One ``headcount open MODEL ... --screenshot OUT --size 1366x768`` command (offscreen, settings kept apart)."""
+    command = [sys.executable, "-m", "ui.launcher", "open", str(model), *args, "--screenshot", str(out)]
+    command += ["--size", "x".join(map(str, LAPTOP))]
+    done = subprocess.run(command, cwd=ROOT, capture_output=True, text=True, timeout=1800)
+    if done.returncode != 0:
+        raise RuntimeError(f"{' '.join(command[2:])} failed:\n{done.stderr}")
+    print(f"wrote docs/{out.name}")
+
+
+def message_with_tokens(tokenizer, n: int) -> str:
+    """The evaluation set's utterances run together (a pasted thread), cut at the last word within ``n`` tokens."""
+    from inspector.paths import SAMPLE_EVAL
+
+    with SAMPLE_EVAL.open(newline="", encoding="utf-8") as fh:
+        words = " ".join(f"{row['text']}." for row in csv.DictReader(fh)).split()
+    lo, hi = 1, len(words)
+    while lo < hi:
+        mid = (lo + hi + 1) // 2
+        if len(tokenizer(" ".join(words[:mid]), truncation=False)["input_ids"]) <= n:
+            lo = mid
+        else:
+            hi = mid - 1
+    return " ".join(words[:lo])
+
+
+def size_shots(tmp: Path) -> None:
+    """The sentence page at 1366 x 768 with 16-, 128- and 512-token messages on a BERT-base-sized model."""
+    import transformers
+
+    from bench.bench_ui import random_bert_classifier
+    from inspector.paths import SAMPLE_EVAL
+
+    with SAMPLE_EVAL.open(newline="", encoding="utf-8") as fh:
+        labels = sorted({row["label"] for row in csv.DictReader(fh)})
+    model = random_bert_classifier(tmp / "base_sized", labels, seed=0, initializer_range=0.08, **BASE_SHAPE)
+    tokenizer = transformers.AutoTokenizer.from_pretrained(str(model), local_files_only=True)
+    for n in LENGTHS:
+        screenshot(model, DOCS / f"window_{n}.png", "--text", message_with_tokens(tokenizer, n))
 
 
 def random_classifier(folder: Path) -> Path:
@@ -104,7 +167,7 @@ def explain_with_what_if(app, window, text: str, expected: str) -> None:
 
 
 def corpus_run(app, window) -> None:
-    """Run the Corpus page on the bundled evaluation set and shoot both of its tabs."""
+    """Run the Corpus page on the bundled evaluation set and shoot its heads tab."""
     from inspector.paths import SAMPLE_EVAL
 
     page = window.corpus_page
@@ -113,12 +176,11 @@ def corpus_run(app, window) -> None:
     page.every.setValue(2)  # a measured point every two heads keeps the screenshot run short
     page.run()
     wait_until(app, lambda: page.report is not None and not window.is_busy(), timeout=600.0)
-    window.grab().save(str(DOCS / "corpus.png"))
     page.tabs.setCurrentIndex(1)
     wait_until(app, lambda: not window.is_busy())
     window.grab().save(str(DOCS / "corpus_heads.png"))
     page.tabs.setCurrentIndex(0)
-    print("wrote docs/corpus.png, docs/corpus_heads.png")
+    print("wrote docs/corpus_heads.png")
 
 
 def two_heads_that_matter(lm, text: str, expected: str) -> tuple[list[tuple[int, int]], float]:
@@ -219,8 +281,12 @@ def main() -> int:
     from ui.app import application
     from ui.main_window import MainWindow
 
-    app = application()
     tmp = tempfile.TemporaryDirectory()
+    size_shots(Path(tmp.name))
+    if "--sizes-only" in sys.argv[1:]:
+        tmp.cleanup()
+        return 0
+    app = application()
     if sample_model_available():
         model = SAMPLE_MODEL
         text, expected = misrouted_sentence(model)
@@ -228,9 +294,11 @@ def main() -> int:
         print("sample model not found: using a random ferry-intent classifier (random attention)")
         model = random_classifier(Path(tmp.name) / "ferry_intents_random")
         text, expected = misrouted_fallback(model)
+    screenshot(model, DOCS / "window.png", "--text", text, "--expected", expected)
+    screenshot(model, DOCS / "corpus.png", "--page", "corpus")
     settings = QSettings(str(Path(tmp.name) / "settings.ini"), QSettings.Format.IniFormat)
     window = MainWindow(settings)
-    window.resize(1440, 900)
+    window.resize(*LAPTOP)
     window.show()
     window.open_sentence(text, expected)
     window.open_model(model)
@@ -240,7 +308,6 @@ def main() -> int:
     wait_until(app, lambda: not window.is_busy())
 
     shots = {
-        "window.png": window,
         "head_mosaic.png": page.mosaic_panel,
         "close_up.png": page.closeup_panel,
         "token_arcs.png": page.arcs_panel,

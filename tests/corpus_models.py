@@ -112,3 +112,29 @@ def write_jsonl(
         for text, label in rows:
             fh.write(json.dumps({keys[0]: text, keys[1]: label}) + "\n")
     return path
+
+
+def pause_corpus_job(monkeypatch, callback: str, when) -> tuple:
+    """Make the corpus page's job wait inside its ``callback`` ('on_step' or 'on_result') the first time
+    ``when(*args)`` is true; returns ``(paused, release)`` events (set ``release`` to let it go on)."""
+    import threading
+
+    import ui.corpus.page as corpus_page
+
+    paused, release = threading.Event(), threading.Event()
+    real = corpus_page.compute_corpus
+
+    def pausing(lm, request, **kw):
+        inner = kw[callback]
+
+        def wrapped(*args):
+            inner(*args)
+            if not paused.is_set() and when(*args):
+                paused.set()
+                release.wait(30)
+
+        kw[callback] = wrapped
+        return real(lm, request, **kw)
+
+    monkeypatch.setattr(corpus_page, "compute_corpus", pausing)
+    return paused, release

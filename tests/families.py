@@ -31,10 +31,17 @@ CONFIGS = {
 LABELS = ["book_crossing", "cancel_booking", "timetable"]
 
 
-def build_checkpoint(family: str, folder: Path, tokenizer_dir: Path, task: str = "sequence") -> Path:
-    """Save a seeded random ``family`` model (classifier or bare encoder) into ``folder``."""
+def build_checkpoint(
+    family: str, folder: Path, tokenizer_dir: Path, task: str = "sequence", **shape: object
+) -> Path:
+    """Save a seeded random ``family`` model (classifier or bare encoder) into ``folder``.
+
+    ``shape`` overrides config fields (e.g. ``num_hidden_layers=12, num_attention_heads=12``).
+    """
     tok = transformers.AutoTokenizer.from_pretrained(str(tokenizer_dir), local_files_only=True)
     config = CONFIGS[family](len(tok))
+    for key, value in shape.items():
+        setattr(config, key, value)
     config.id2label = dict(enumerate(LABELS))
     config.label2id = {v: k for k, v in config.id2label.items()}
     torch.manual_seed(0)

@@ -24,7 +24,13 @@ from inspector.checkpoint.loader import LoadedModel, load_checkpoint  # noqa: E4
 from inspector.corpus.dataset import read_labelled  # noqa: E402
 from inspector.corpus.report import FIGURES, HEADS, PRUNE_MASK, PRUNING, SIMILAR_PAIRS, SUMMARY  # noqa: E402
 from inspector.corpus.run import run_corpus  # noqa: E402
-from tests.corpus_models import INTENTS, UTTERANCES, save_tiny_classifier, write_csv  # noqa: E402
+from tests.corpus_models import (  # noqa: E402
+    INTENTS,
+    UTTERANCES,
+    pause_corpus_job,
+    save_tiny_classifier,
+    write_csv,
+)
 from ui.widgets.worker import MODEL_LOCK  # noqa: E402
 
 WAIT_MS = 60_000
@@ -134,7 +140,9 @@ def test_run_fills_the_page_with_the_core_and_sklearn_numbers(qtbot, window, cla
     assert shown == {c.order_name: c.accuracy for c in core.pruning.curves}
     assert report.pruning.removed == core.pruning.removed
     assert "re-validated" in page.caution.text() and "without retraining" in page.caution.text()
-    assert page.progress.value() == page.progress.maximum()
+    assert all(
+        page.phase_bars[p].value() == page.phase_bars[p].maximum() for p in ("scan", "importance", "pruning")
+    )
 
 
 def test_cancel_stops_the_run_keeps_the_previous_results_and_a_later_run_works(qtbot, window, data_file):
@@ -264,3 +272,38 @@ def test_export_writes_the_report_folder_and_the_prune_mask(qtbot, window, data_
     assert mask == page.report.pruning.mask == json.loads((out / PRUNE_MASK).read_text())
     assert sum(len(v) for v in mask.values()) == len(page.report.pruning.removed)
     assert not list(tmp_path.glob("*.tmp*"))
+
+
+def test_each_phase_shows_its_results_when_it_ends_and_cancel_keeps_them(
+    qtbot, window, data_file, monkeypatch
+):
+    """The scan's numbers are on the page while importance still runs; Cancel then keeps them, says so,
+    and marks the unfinished phases as cancelled (never "done").
+
+    Reference: scikit-learn's accuracy_score on the transformers library's own predictions; the run is held
+    after its scan from its own result callback, so the cancel point is deterministic (common practice, no source).
+    """
+    held, release = pause_corpus_job(monkeypatch, "on_result", lambda phase, _report: phase == "scan")
+    page = window.corpus_page
+    with qtbot.waitSignal(page.finished, timeout=WAIT_MS) as blocker:
+        start(window, data_file)
+        assert "Running on ferry.csv" in page.summary.text()  # not "choose its evaluation set"
+        try:
+            qtbot.waitUntil(lambda: page.report is not None, timeout=WAIT_MS)
+            assert held.is_set() and page.is_running()
+            lm = window.lm
+            y_true = np.array([INTENTS.index(label) for _, label in UTTERANCES])
+            y_pred = transformers_predictions(lm, [text for text, _ in UTTERANCES])
+            assert f"{100 * accuracy_score(y_true, y_pred):.1f}%" in page.summary.text()
+            assert page.report.importance is None
+            assert "still running" in page.importance_map.note
+            assert "Scan: " in page.phase_bars["scan"].format() and " in " in page.phase_bars["scan"].format()
+            page.cancel()
+        finally:
+            release.set()
+    assert blocker.args[0] == "cancelled"
+    assert page.report.evaluation.accuracy == pytest.approx(accuracy_score(y_true, y_pred))
+    assert "kept what finished: the scan" in page.phase_label.text()
+    for phase in ("importance", "pruning"):
+        assert page.phase_bars[phase].format().endswith("cancelled")
+    assert "cancelled" in page.importance_map.note

@@ -1,20 +1,23 @@
 """Start the window: ``headcount`` (sample model) or ``headcount open MODEL_DIR``.
 
 With ``QT_QPA_PLATFORM=offscreen`` the window runs without a display (tests,
-screenshots); ``--screenshot FILE`` saves a picture of it once the first
-sentence is shown and exits.
+screenshots); ``--screenshot FILE`` renders it offscreen at ``--size`` once the
+chosen ``--page`` is ready, saves the picture and exits (see :mod:`ui.screenshot`).
 """
 
 from __future__ import annotations
 
 import argparse
+import os
 import sys
+import tempfile
 from collections.abc import Sequence
 from pathlib import Path
 
 from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication
 
+from inspector.cli.window import add_window_arguments
 from inspector.paths import default_model
 from ui.binding_check import binding_warning
 
@@ -23,16 +26,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="headcount open", description="Open a checkpoint folder in the window."
     )
-    parser.add_argument("model", nargs="?", help="checkpoint folder (default: the bundled sample model)")
-    parser.add_argument(
-        "--allow-pickle", action="store_true", help="read *.bin weights with the weights-only loader"
-    )
-    parser.add_argument("--text", help="sentence to analyse first")
-    parser.add_argument("--expected", help="expected label of that sentence")
-    parser.add_argument(
-        "--screenshot", metavar="PNG", help="save a picture of the window once ready, then exit"
-    )
-    return parser
+    return add_window_arguments(parser)
 
 
 def application() -> QApplication:
@@ -47,10 +41,12 @@ def application() -> QApplication:
 
 
 def build_window(args: argparse.Namespace, settings: QSettings | None = None):
-    """Create the window and start opening the requested (or default) model."""
+    """Create the window (at ``--size`` if given) and start opening the requested (or default) model."""
     from ui.main_window import MainWindow
 
     window = MainWindow(settings)
+    if getattr(args, "size", None):
+        window.resize(*args.size)
     if args.text:
         window.open_sentence(args.text, args.expected)
     model = Path(args.model) if args.model else default_model()
@@ -66,21 +62,36 @@ def build_window(args: argparse.Namespace, settings: QSettings | None = None):
 def run_window(argv: Sequence[str]) -> int:
     """Entry point used by ``ui.launcher``: returns the process exit status."""
     args = build_parser().parse_args(list(argv))
+    if args.screenshot and QApplication.instance() is None:
+        os.environ["QT_QPA_PLATFORM"] = "offscreen"  # a picture needs no display
     app = application()
     warning = binding_warning()
     if warning:
         print(warning, file=sys.stderr)
-    window = build_window(args)
+    scratch = tempfile.TemporaryDirectory() if args.screenshot else None
+    # A picture run leaves the user's settings (recent models, folders) alone.
+    settings = (
+        QSettings(str(Path(scratch.name) / "settings.ini"), QSettings.Format.IniFormat) if scratch else None
+    )
+    window = build_window(args, settings)
     window.show()
+    if args.size and (window.width(), window.height()) != tuple(args.size):
+        print(
+            f"headcount: the window cannot be {args.size[0]}x{args.size[1]}; "
+            f"it is {window.width()}x{window.height()} (its smallest usable size)",
+            file=sys.stderr,
+        )
     status = {"code": 0}
     if args.screenshot:
-        from ui.main_window import grab_when_ready
+        from ui.screenshot import Shooter
 
         def finished(ok: bool) -> None:
             status["code"] = 0 if ok else 2
             window.close()
             app.quit()
 
-        grab_when_ready(window, Path(args.screenshot), finished)
+        Shooter(window, Path(args.screenshot), finished, page=args.page, data=args.data)
     code = app.exec()
+    if scratch is not None:
+        scratch.cleanup()
     return status["code"] or code

@@ -10,9 +10,19 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from PySide6.QtCore import QSettings, Qt, QTimer, Signal
-from PySide6.QtGui import QAction, QActionGroup, QCloseEvent, QDragEnterEvent, QDropEvent, QKeySequence
+from PySide6.QtCore import QEvent, QSettings, QSize, Qt, Signal
+from PySide6.QtGui import (
+    QAction,
+    QActionGroup,
+    QCloseEvent,
+    QDragEnterEvent,
+    QDropEvent,
+    QKeySequence,
+    QPalette,
+)
 from PySide6.QtWidgets import (
+    QDialog,
+    QDialogButtonBox,
     QFileDialog,
     QHBoxLayout,
     QLabel,
@@ -51,25 +61,26 @@ STARTER_SENTENCE = "can I bring my dog on the evening crossing to Orlestow"
 """Shown when a model opens with an empty entry (from the project's ferry-operator scenario)."""
 
 SHORTCUTS_HELP = """<table cellspacing=4>
-<tr><td><b>Ctrl+O</b></td><td>Open a model folder</td></tr>
-<tr><td><b>Ctrl+Shift+O</b></td><td>Compare with a second model (or Shift+drop its folder on the window)</td></tr>
-<tr><td><b>Ctrl+L</b></td><td>Go to the sentence entry</td></tr>
-<tr><td><b>Ctrl+1 \u2026 Ctrl+4</b></td><td>Go to head mosaic, close-up, token arcs, relevance band</td></tr>
-<tr><td><b>Arrow keys</b></td><td>In the mosaic: move the selected head</td></tr>
-<tr><td><b>Alt+Arrow keys</b></td><td>Move the selected head from anywhere</td></tr>
-<tr><td><b>Up/Down, Left/Right</b></td><td>In the close-up / token arcs: move the query token</td></tr>
-<tr><td><b>Alt+1 \u2026 Alt+5</b></td><td>Close-up shows: head, layer mean, rollout, flow, value-weighted</td></tr>
-<tr><td><b>Ctrl+M</b></td><td>Next meter metric</td></tr>
-<tr><td><b>Space / Shift+Space</b></td><td>In the mosaic: switch the selected head / its layer off or on (also double-click)</td></tr>
-<tr><td><b>Ctrl+D / Ctrl+Shift+D</b></td><td>Switch the selected head / layer off or on from anywhere</td></tr>
-<tr><td><b>Ctrl+Shift+A</b></td><td>All heads back on (the full model)</td></tr>
-<tr><td><b>Ctrl+Shift+W / H</b></td><td>Words instead of pieces / hide special tokens</td></tr>
-<tr><td><b>Ctrl+E</b></td><td>Export the view that has the keyboard focus</td></tr>
-<tr><td><b>Ctrl+Shift+E</b></td><td>Export the one-page figure sheet (PDF)</td></tr>
-<tr><td><b>Ctrl+Shift+X</b></td><td>Explain the sentence: what pushed it toward each label, and what-if edits</td></tr>
-<tr><td><b>Ctrl+Return</b></td><td>On the Explain page: explain again (and compare the edited copy)</td></tr>
-<tr><td><b>Ctrl+Shift+K</b></td><td>Corpus page: a whole evaluation set (Enter on a misfire: sentence view; Ctrl+Enter: explain)</td></tr>
-<tr><td><b>Ctrl+Shift+R</b></td><td>On the Corpus page: export the report folder</td></tr>
+<tr><td nowrap><b>Ctrl+O</b></td><td>Open a model folder</td></tr>
+<tr><td nowrap><b>Ctrl+Shift+O</b></td><td>Compare with a second model (or Shift+drop its folder on the window)</td></tr>
+<tr><td nowrap><b>Ctrl+L</b></td><td>Go to the sentence entry</td></tr>
+<tr><td nowrap><b>Ctrl+1 \u2026 Ctrl+4</b></td><td>Go to head mosaic, close-up, token arcs, relevance band</td></tr>
+<tr><td nowrap><b>Arrow keys</b></td><td>In the mosaic: move the selected head</td></tr>
+<tr><td nowrap><b>Alt+Arrow keys</b></td><td>Move the selected head from anywhere</td></tr>
+<tr><td nowrap><b>Up/Down, Left/Right</b></td><td>In the close-up (Up/Down) / token arcs (Left/Right): move the query token</td></tr>
+<tr><td nowrap><b>+ / \u2212 / 0</b></td><td>In the close-up: zoom in, zoom out, whole matrix (the wheel zooms; drag, Left/Right, Page Up/Down pan)</td></tr>
+<tr><td nowrap><b>Alt+1 \u2026 Alt+5</b></td><td>Close-up shows: head, layer mean, rollout, flow, value-weighted</td></tr>
+<tr><td nowrap><b>Ctrl+M</b></td><td>Next meter metric</td></tr>
+<tr><td nowrap><b>Space / Shift+Space</b></td><td>In the mosaic: switch the selected head / its layer off or on (also double-click)</td></tr>
+<tr><td nowrap><b>Ctrl+D / Ctrl+Shift+D</b></td><td>Switch the selected head / layer off or on from anywhere</td></tr>
+<tr><td nowrap><b>Ctrl+Shift+A</b></td><td>All heads back on (the full model)</td></tr>
+<tr><td nowrap><b>Ctrl+Shift+W / H</b></td><td>Words instead of pieces / hide special tokens</td></tr>
+<tr><td nowrap><b>Ctrl+E</b></td><td>Export the view that has the keyboard focus</td></tr>
+<tr><td nowrap><b>Ctrl+Shift+E</b></td><td>Export the one-page figure sheet (PDF)</td></tr>
+<tr><td nowrap><b>Ctrl+Shift+X</b></td><td>Explain the sentence: what pushed it toward each label, and what-if edits</td></tr>
+<tr><td nowrap><b>Ctrl+Return</b></td><td>On the Explain page: explain again (and compare the edited copy)</td></tr>
+<tr><td nowrap><b>Ctrl+Shift+K</b></td><td>Corpus page: a whole evaluation set (Enter on a misfire: sentence view; Ctrl+Enter: explain)</td></tr>
+<tr><td nowrap><b>Ctrl+Shift+R</b></td><td>On the Corpus page: export the report folder</td></tr>
 </table>"""
 
 
@@ -128,6 +139,13 @@ def analyse_pair(
         return analysis, full, str(exc)
 
 
+def initial_size(available: QSize | None) -> QSize:
+    """The window's first size: 1360 x 880, or less on a smaller screen (a 1366 x 768 laptop)."""
+    if available is None or available.isEmpty():
+        return QSize(1360, 880)
+    return QSize(min(1360, available.width()), min(880, available.height()))
+
+
 class MainWindow(QMainWindow):
     """Headcount's window."""
 
@@ -158,9 +176,7 @@ class MainWindow(QMainWindow):
         self.nav = QListWidget(self)
         self.nav.setAccessibleName("Pages")
         self.nav.setFixedWidth(104)
-        self.nav.setStyleSheet(
-            "QListWidget { border: none; background: transparent; } QListWidget::item { padding: 7px 8px; }"
-        )
+        self._style_nav()
         self.pages = QStackedWidget(self)
         self.nav.currentRowChanged.connect(self.pages.setCurrentIndex)
         self.add_page("Sentence", self.sentence_page)
@@ -209,7 +225,7 @@ class MainWindow(QMainWindow):
         self._connect_corpus()
         self._connect_comparison()
         self.exporter.failed.connect(lambda text: self.show_error(f"Export failed: {text}"))
-        self.resize(1360, 880)
+        self.resize(initial_size(self.screen().availableGeometry().size() if self.screen() else None))
 
     # -- pages -------------------------------------------------------------------------------------
     def add_page(self, title: str, widget: QWidget) -> int:
@@ -371,6 +387,18 @@ class MainWindow(QMainWindow):
         page.error.connect(self.show_error)
         page.use_mask.connect(self._use_mask)
         self.model_loaded.connect(page.set_model)
+        page.holds_model.connect(self._corpus_holds_model)
+
+    def _corpus_holds_model(self, held: bool) -> None:
+        """While a corpus run uses the window's own model, the sentence page says why it waits."""
+        page = self.sentence_page
+        page.waiting_reason = (
+            "waiting for the corpus run, which holds the model (no memory for a second copy; "
+            "Cancel it on the Corpus page)"
+            if held
+            else ""
+        )
+        page.update_stale_note()
 
     def _use_mask(self, mask: HeadMask) -> None:
         """Switch the corpus page's chosen heads off on the sentence page, and show it."""
@@ -398,8 +426,36 @@ class MainWindow(QMainWindow):
         box = self.sentence_page.metric_box
         box.setCurrentIndex((box.currentIndex() + 1) % box.count())
 
-    def show_shortcuts(self) -> None:
-        QMessageBox.information(self, "Keyboard shortcuts", SHORTCUTS_HELP)
+    def _style_nav(self) -> None:
+        """Page names in the palette's text colour, set again when the palette changes at run time
+        (a style sheet keeps the colours it was given, so a dark palette would hide them)."""
+        text = self.palette().color(QPalette.ColorRole.WindowText).name()
+        self.nav.setStyleSheet(
+            "QListWidget { border: none; background: transparent; } "
+            f"QListWidget::item {{ padding: 7px 8px; color: {text}; }} "
+            "QListWidget::item:selected { color: palette(highlighted-text); background: palette(highlight); }"
+        )
+
+    def changeEvent(self, event: QEvent) -> None:
+        if event.type() == QEvent.Type.PaletteChange:
+            self._style_nav()
+        super().changeEvent(event)
+
+    def show_shortcuts(self) -> QDialog:
+        """The shortcut list, one line per shortcut (no wrapping inside a description)."""
+        dialog = QDialog(self)
+        dialog.setWindowTitle("Keyboard shortcuts")
+        label = QLabel(SHORTCUTS_HELP, dialog)
+        label.setTextFormat(Qt.TextFormat.RichText)
+        label.setWordWrap(False)
+        buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Close, dialog)
+        buttons.rejected.connect(dialog.reject)
+        layout = QVBoxLayout(dialog)
+        layout.addWidget(label)
+        layout.addWidget(buttons)
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        dialog.show()
+        return dialog
 
     def show_caution(self) -> None:
         QMessageBox.information(
@@ -725,13 +781,3 @@ class MainWindow(QMainWindow):
         self.compare_view.stop()
         self.runner.wait(30000)
         super().closeEvent(event)
-
-
-def grab_when_ready(window: MainWindow, path: Path, done) -> None:
-    """Save a screenshot of ``window`` once the first analysis (or a load error) is shown, then call ``done(ok)``."""
-
-    def shoot(ok: bool) -> None:
-        QTimer.singleShot(80, lambda: (window.grab().save(str(path)), done(ok)))
-
-    window.sentence_page.views_updated.connect(lambda: shoot(True), Qt.ConnectionType.SingleShotConnection)
-    window.load_failed.connect(lambda _t: shoot(False), Qt.ConnectionType.SingleShotConnection)

@@ -11,11 +11,12 @@ import argparse
 import sys
 from collections.abc import Callable, Sequence
 
-from inspector.cli import analyze, compare, corpus, explain, prune
+from inspector.cli import analyze, compare, corpus, explain, prune, window
 from inspector.cli.common import EXIT_USER_ERROR
 from inspector.errors import HeadcountError
 
 COMMANDS: tuple[Callable[[argparse._SubParsersAction], None], ...] = (
+    window.register,
     analyze.register,
     explain.register,
     corpus.register,

@@ -3,8 +3,12 @@ head importance and a pruning simulation.
 
 Qt-free entry point for the CLI and the window: :func:`run_corpus` takes a
 progress callback ``on_progress(done, total)`` (units are batches over all
-phases) and a cancel check ``should_stop() -> bool`` polled before every batch;
-a cancelled run raises :class:`CorpusCancelled`.
+phases), a per-phase one ``on_step(PhaseProgress)`` (utterances for the scan and
+the importance pass, pruning steps for the simulation, with the time elapsed in
+the phase), ``on_result(phase, report)`` called with the results so far as each
+phase ends, and a cancel check ``should_stop() -> bool`` polled before every
+batch; a cancelled run raises :class:`CorpusCancelled` (what ``on_result`` already
+delivered stays valid).
 
 The scan keeps no attention: every batch's per-head metrics are folded into a
 running mean and spread (:class:`inspector.corpus.streaming.RunningMoments`), the
@@ -26,6 +30,8 @@ values within 0.004 bits.
 
 from __future__ import annotations
 
+import dataclasses
+import time
 from collections.abc import Callable, Sequence
 from contextlib import nullcontext
 from dataclasses import dataclass, field
@@ -64,14 +70,54 @@ PHASES = {
     "importance": "Head importance (gate gradients)",
     "pruning": "Pruning simulation (no retraining)",
 }
+PHASE_UNITS = {"scan": "utterance", "importance": "utterance", "pruning": "step"}
+"""What each phase counts: utterances passed through the model, or pruning steps (one
+accuracy measurement over the pruning set, a fraction of a step per batch)."""
+
+
+@dataclass(frozen=True)
+class PhaseProgress:
+    """Where one phase of a corpus run stands."""
+
+    phase: str
+    done: float
+    """Units finished (pruning steps advance by a fraction per batch)."""
+    total: float
+    """Units planned for the phase."""
+    elapsed: float
+    """Seconds since the phase started."""
+
+    @property
+    def unit(self) -> str:
+        return PHASE_UNITS[self.phase]
+
+    @property
+    def finished(self) -> bool:
+        return self.done >= self.total
+
+    def seconds_left(self) -> float | None:
+        """Time left at the phase's own pace so far: ``elapsed * (total - done) / done`` (None before any work)."""
+        if self.done <= 0 or self.elapsed <= 0:
+            return None
+        return max(self.elapsed * (self.total - self.done) / self.done, 0.0)
+
+
+StepCallback = Callable[[PhaseProgress], None]
+ResultCallback = Callable[[str, "CorpusReport"], None]
 
 
 class CorpusCancelled(Exception):
     """Raised inside :func:`run_corpus` when ``should_stop()`` returned True."""
 
 
+def _utterances(item: object) -> int:
+    """Utterances in one batch item (an index array or a padded batch)."""
+    index = getattr(item, "index", item)
+    return len(index)
+
+
 class Progress:
-    """Counts finished batches across phases; polls the cancel check before each batch."""
+    """Counts finished batches across phases and units within the current phase; polls the cancel check."""
 
     def __init__(
         self,
@@ -79,32 +125,67 @@ class Progress:
         on_progress: ProgressCallback | None = None,
         should_stop: StopCheck | None = None,
         on_phase: PhaseCallback | None = None,
+        on_step: StepCallback | None = None,
+        clock: Callable[[], float] = time.monotonic,
     ) -> None:
         self.total = total
         self.done = 0
         self.on_progress = on_progress
         self.should_stop = should_stop
         self.on_phase = on_phase
+        self.on_step = on_step
+        self.clock = clock
+        self.current: str | None = None
+        self.phase_total = 0.0
+        self.phase_done = 0.0
+        self.per_unit = 1
+        """Utterances that make one unit of the current phase (1, or the pruning set's size)."""
+        self._start = 0.0
 
-    def phase(self, name: str) -> None:
+    def phase(self, name: str, total: float = 0.0, per_unit: int = 1) -> None:
+        """Start phase ``name`` with ``total`` units of ``per_unit`` utterances each."""
+        self.current, self.phase_total, self.phase_done = name, float(total), 0.0
+        self.per_unit, self._start = max(int(per_unit), 1), self.clock()
         if self.on_phase is not None:
             self.on_phase(name)
+        self._report()
+
+    def end_phase(self) -> None:
+        """Mark the current phase complete (its plan may have been an estimate)."""
+        if self.current is not None:
+            self.phase_total = self.phase_done = max(self.phase_done, self.phase_total)
+            self._report()
+
+    def state(self) -> PhaseProgress | None:
+        if self.current is None:
+            return None
+        return PhaseProgress(self.current, self.phase_done, self.phase_total, self.clock() - self._start)
+
+    def _report(self) -> None:
+        state = self.state()
+        if self.on_step is not None and state is not None:
+            self.on_step(state)
 
     def check(self) -> None:
         if self.should_stop is not None and self.should_stop():
             raise CorpusCancelled("the corpus run was cancelled")
 
-    def advance(self) -> None:
+    def advance(self, utterances: int = 0) -> None:
+        """One more batch done, holding ``utterances`` utterances."""
         self.done += 1
         if self.on_progress is not None:
             self.on_progress(self.done, self.total)
+        if self.current is not None:
+            self.phase_done += utterances / self.per_unit
+            self.phase_total = max(self.phase_total, self.phase_done)
+            self._report()
 
     def batches(self, items: Sequence[np.ndarray]):
         """Yield ``items`` one by one, checking for cancel before and counting after each."""
         for item in items:
             self.check()
             yield item
-            self.advance()
+            self.advance(_utterances(item))
 
 
 # ----------------------------------------------------------------------------- evaluation
@@ -523,18 +604,23 @@ class CorpusReport:
     notes: list[str] = field(default_factory=list)
 
 
+def pruning_steps(settings: CorpusSettings, n_heads_total: int, baseline_known: bool) -> int:
+    """Accuracy measurements the pruning simulation plans (each one pass over the pruning set)."""
+    if not settings.orders:
+        return 0
+    steps = step_counts(n_heads_total, settings.prune_every, len(set(settings.mask)))
+    passes = (len(steps) - 1) * len(settings.orders) + (0 if baseline_known else 1)
+    if settings.remove is not None and settings.remove not in steps:
+        passes += 1
+    return passes
+
+
 def plan_total(
     n_batches: int, n_prune_batches: int, settings: CorpusSettings, n_heads_total: int, baseline_known: bool
 ) -> int:
     """Number of batch units :func:`run_corpus` will report, for the progress bar."""
     total = n_batches * (2 if settings.importance else 1)
-    if settings.orders:
-        steps = step_counts(n_heads_total, settings.prune_every, len(set(settings.mask)))
-        passes = (len(steps) - 1) * len(settings.orders) + (0 if baseline_known else 1)
-        if settings.remove is not None and settings.remove not in steps:
-            passes += 1
-        total += n_prune_batches * passes
-    return total
+    return total + n_prune_batches * pruning_steps(settings, n_heads_total, baseline_known)
 
 
 def run_corpus(
@@ -545,6 +631,8 @@ def run_corpus(
     on_progress: ProgressCallback | None = None,
     should_stop: StopCheck | None = None,
     on_phase: PhaseCallback | None = None,
+    on_step: StepCallback | None = None,
+    on_result: ResultCallback | None = None,
 ) -> CorpusReport:
     """Analyse a whole labelled set: evaluation, head statistics, redundancy, importance, pruning.
 
@@ -561,6 +649,12 @@ def run_corpus(
         Polled before every batch; True raises :class:`CorpusCancelled`.
     on_phase : callable(name), optional
         Called with ``'scan'``, ``'importance'``, ``'pruning'`` as each phase starts.
+    on_step : callable(PhaseProgress), optional
+        Called as each phase starts and after every batch, with that phase's
+        progress in its own unit (see :data:`PHASE_UNITS`).
+    on_result : callable(phase, CorpusReport), optional
+        Called as each phase ends with a copy of the report so far (the scan's
+        evaluation and head statistics first, then importance, then pruning).
 
     Returns
     -------
@@ -588,7 +682,7 @@ def run_corpus(
     settings.check(lm)
     mask = HeadMask.of(settings.mask)
     with masked(lm, mask):
-        return _run_corpus(lm, data, settings, mask, on_progress, should_stop, on_phase)
+        return _run_corpus(lm, data, settings, mask, on_progress, should_stop, on_phase, on_step, on_result)
 
 
 def _run_corpus(
@@ -599,6 +693,8 @@ def _run_corpus(
     on_progress: ProgressCallback | None,
     should_stop: StopCheck | None,
     on_phase: PhaseCallback | None,
+    on_step: StepCallback | None = None,
+    on_result: ResultCallback | None = None,
 ) -> CorpusReport:
     encoded = encode_set(lm, data.texts)
     gold = label_indices(lm, data)
@@ -607,9 +703,20 @@ def _run_corpus(
     subset = pruning_subset(len(data), settings.prune_subset, settings.seed)
     n_prune = len(encoded.sorted_batches(settings.batch_size, subset))
     progress = Progress(
-        plan_total(n_batches, n_prune, settings, n_total, subset is None), on_progress, should_stop, on_phase
+        plan_total(n_batches, n_prune, settings, n_total, subset is None),
+        on_progress,
+        should_stop,
+        on_phase,
+        on_step,
     )
-    progress.phase("scan")
+    pruned_set = len(data) if subset is None else len(subset)
+
+    def phase_done(name: str) -> None:
+        progress.end_phase()
+        if on_result is not None:
+            on_result(name, dataclasses.replace(report, notes=list(report.notes)))
+
+    progress.phase("scan", len(data))
     found = scan(
         lm,
         data,
@@ -644,13 +751,15 @@ def _run_corpus(
             f"Head redundancy compares {red.rows_compared} of {red.rows_total} real query rows "
             f"(at most {settings.js_rows} drawn per batch, seed {settings.seed}, reweighted to an unbiased mean)."
         )
+    phase_done("scan")
     if settings.importance:
-        progress.phase("importance")
+        progress.phase("importance", len(data))
         report.importance = importance_pass(
             lm, encoded, gold, batch_size=settings.batch_size, progress=progress
         )
+        phase_done("importance")
     if settings.orders:
-        progress.phase("pruning")
+        progress.phase("pruning", pruning_steps(settings, n_total, subset is None), per_unit=pruned_set)
         imp = report.importance.normalized if report.importance is not None else None
         orders = {
             name: masked_first(
@@ -705,4 +814,5 @@ def _run_corpus(
             report.notes.append(
                 f"Pruning accuracy was measured after every {fmt.count(settings.prune_every, 'head')}."
             )
+        phase_done("pruning")
     return report

@@ -1,7 +1,7 @@
 """The corpus page: a whole labelled evaluation set at once.
 
 Top: the data file (CSV or JSON Lines), its field names and what to do with bad
-rows, the run's options, Run / Cancel with a progress bar naming the phase.
+rows, the run's options, Run / Cancel with one progress bar per phase.
 Then what was read (bad rows by line number, labels the model does not know).
 Two tabs of results: *Evaluation* (accuracy, macro-F1, per-intent scores, the
 confusion matrix, the misfires most confident first: a click opens one in the
@@ -11,9 +11,14 @@ near-duplicate groups, and the pruning curve with its caution and the chosen set
 of heads to remove).
 
 The run goes through :func:`ui.corpus.state.compute_corpus` on the window's
-:class:`ui.widgets.worker.JobRunner` ("corpus" channel) holding ``MODEL_LOCK``; Cancel
-sets an event that :func:`inspector.corpus.run.run_corpus` polls before every batch,
-so the run stops within one batch and the results shown before stay.
+:class:`ui.widgets.worker.JobRunner` ("corpus" channel), on a private copy of the
+model when memory allows (so the sentence page keeps analysing during the run),
+otherwise holding ``MODEL_LOCK`` for the whole run (and the sentence page says it
+waits). One progress bar per phase counts utterances (scan, importance) or pruning
+steps and estimates the time left; each phase's results appear as soon as it ends.
+Cancel sets an event that :func:`inspector.corpus.run.run_corpus` polls before
+every batch, so the run stops within one batch; what finished stays on the page and
+the status line says which phases were kept.
 """
 
 from __future__ import annotations
@@ -43,17 +48,21 @@ from PySide6.QtWidgets import (
 )
 
 from inspector import formatting as fmt
+from inspector.checkpoint.copies import copy_fits, private_copy
 from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask
 from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
 from inspector.corpus.report import write_report
-from inspector.corpus.run import PHASES, CorpusCancelled, CorpusReport
+from inspector.corpus.run import PHASES, CorpusCancelled, CorpusReport, PhaseProgress
 from inspector.corpus.settings import CorpusSettings
 from inspector.formatting import count
 from ui.corpus.pruning_plot import PruningPlot
 from ui.corpus.state import (
+    PHASE_TITLES,
+    PHASE_WORDS,
     CorpusRequest,
     MaskChoice,
+    cancel_text,
     choose_by_count,
     choose_by_tolerance,
     choose_point,
@@ -66,6 +75,8 @@ from ui.corpus.state import (
     head_names,
     intent_rows,
     mask_text,
+    phase_text,
+    planned_phases,
     provenance,
     summary_html,
     with_choice,
@@ -87,12 +98,20 @@ MISFIRE_HEADER = ("Line", "Utterance", "Expected", "Predicted", "Confidence", ""
 EXPLAIN_COLUMN = 5
 
 
+BAR_STEPS = 1000
+"""Resolution of the phase bars (pruning steps advance by fractions)."""
+
+
 class _Progress(QObject):
     """Carries progress from the worker thread to the page (queued signals)."""
 
-    progress = Signal(int, int, int)
-    """run number, batches done, batches in all."""
+    step = Signal(int, object)
+    """run number, PhaseProgress."""
     phase = Signal(int, str)
+    result = Signal(int, str, object)
+    """run number, phase that ended, the report so far."""
+    held = Signal(int, bool)
+    """run number, whether the run holds the window's model (no private copy)."""
 
 
 def _two_over_one(
@@ -126,6 +145,8 @@ class CorpusPage(QWidget):
     """'done', 'cancelled' or 'failed' when a run ends."""
     use_mask = Signal(object)
     """A HeadMask to switch off on the Sentence page."""
+    holds_model = Signal(bool)
+    """True while a run uses the window's own model (no room for a private copy): analyses wait."""
 
     def __init__(self, runner: JobRunner, settings: QSettings, parent: QWidget | None = None) -> None:
         super().__init__(parent)
@@ -141,8 +162,15 @@ class CorpusPage(QWidget):
         self._stop = threading.Event()
         self._run = 0
         self._bridge = _Progress(self)
-        self._bridge.progress.connect(self._progress)
+        self._bridge.step.connect(self._step)
         self._bridge.phase.connect(self._phase)
+        self._bridge.result.connect(self._partial)
+        self._bridge.held.connect(lambda run, held: run == self._run and self.holds_model.emit(held))
+        self._planned: list[str] = []
+        self._finished: list[str] = []
+        self._current: str | None = None
+        self._waiting: dict[str, str] = {}
+        """Phase -> what its views say while its results are not in the report (running, cancelled)."""
 
         self.tabs = QTabWidget(self)
         self.tabs.addTab(self._evaluation_tab(), "&Evaluation")
@@ -205,10 +233,17 @@ class CorpusPage(QWidget):
         self.run_button.clicked.connect(self.run)
         self.cancel_button = QPushButton("&Cancel", box)
         self.cancel_button.clicked.connect(self.cancel)
-        self.progress = QProgressBar(box)
-        self.progress.setAccessibleName("Corpus progress")
-        self.progress.setTextVisible(True)
+        self.phase_bars: dict[str, QProgressBar] = {}
+        for name, title in PHASE_TITLES.items():
+            bar = QProgressBar(box)
+            bar.setAccessibleName(f"{title} progress")
+            bar.setTextVisible(True)
+            bar.setMinimumWidth(60)
+            bar.setFormat(f"{title}: not run")
+            bar.setValue(0)
+            self.phase_bars[name] = bar
         self.phase_label = QLabel("", box)
+        self.phase_label.setWordWrap(True)
         self.export_button = QPushButton("E&xport report\u2026", box)
         self.export_button.setToolTip(
             "Write summary.json, heads.csv, similar_pairs.csv, pruning.csv, prune_mask.json and the figures "
@@ -252,11 +287,12 @@ class CorpusPage(QWidget):
         third.setSpacing(8)
         third.addWidget(self.run_button)
         third.addWidget(self.cancel_button)
-        third.addWidget(self.progress, 2)
-        third.addWidget(self.phase_label, 3)
+        for bar in self.phase_bars.values():
+            third.addWidget(bar, 1)
         grid.addLayout(first, 0, 0)
         grid.addLayout(second, 1, 0)
         grid.addLayout(third, 2, 0)
+        grid.addWidget(self.phase_label, 3, 0)
         return box
 
     def _units(self, _value: object = None) -> None:
@@ -515,20 +551,38 @@ class CorpusPage(QWidget):
         self._run += 1
         run, stop, bridge = self._run, self._stop, self._bridge
 
-        def job() -> object:
-            with MODEL_LOCK:
-                try:
-                    return compute_corpus(
-                        lm,
-                        request,
-                        on_progress=lambda done, total: bridge.progress.emit(run, done, total),
-                        should_stop=stop.is_set,
-                        on_phase=lambda name: bridge.phase.emit(run, name),
-                    )
-                except CorpusCancelled:
-                    return CANCELLED
+        def compute(model: LoadedModel) -> object:
+            try:
+                return compute_corpus(
+                    model,
+                    request,
+                    should_stop=stop.is_set,
+                    on_phase=lambda name: bridge.phase.emit(run, name),
+                    on_step=lambda p: bridge.step.emit(run, p),
+                    on_result=lambda phase, report: bridge.result.emit(run, phase, report),
+                )
+            except CorpusCancelled:
+                return CANCELLED
 
-        self.progress.setRange(0, 0)
+        def job() -> object:
+            with MODEL_LOCK:  # nothing else runs the model while it is copied
+                own = private_copy(lm) if copy_fits(lm) else None
+            if own is not None:
+                return compute(own)
+            bridge.held.emit(run, True)
+            with MODEL_LOCK:
+                return compute(lm)
+
+        self._planned, self._finished, self._current = planned_phases(request.settings), [], None
+        for name, bar in self.phase_bars.items():
+            bar.setVisible(name in self._planned)
+            bar.setRange(0, BAR_STEPS)
+            bar.setValue(0)
+            bar.setFormat(f"{PHASE_TITLES[name]}: waiting")
+        if self.report is None:
+            self.clear(
+                f"Running on {Path(request.path).name}: the evaluation appears here as soon as the scan ends"
+            )
         self.phase_label.setText(f"Reading {Path(request.path).name}\u2026")
         self.runner.submit(CHANNEL, job, lambda result: self._done(lm, result), self._failed)
         self._set_running(True)
@@ -544,22 +598,45 @@ class CorpusPage(QWidget):
         """Stop a running analysis (model change, window closing)."""
         self._stop.set()
 
-    def _progress(self, run: int, done: int, total: int) -> None:
-        if run == self._run and not self._stop.is_set():
-            self.progress.setRange(0, max(total, 1))
-            self.progress.setValue(done)
-            self.progress.setFormat(f"%v of {fmt.count(total, 'batch', 'batches')}")
+    def _step(self, run: int, p: PhaseProgress) -> None:
+        if run != self._run:
+            return
+        bar = self.phase_bars[p.phase]
+        bar.setValue(int(BAR_STEPS * min(p.done / p.total, 1.0)) if p.total else 0)
+        bar.setFormat(phase_text(p))
+        bar.setToolTip(bar.format())
+        self._current = None if p.finished else p.phase
 
     def _phase(self, run: int, name: str) -> None:
         if run == self._run and not self._stop.is_set():
             self.phase_label.setText(PHASES.get(name, name))
 
+    def _partial(self, run: int, phase: str, report: object) -> None:
+        """A phase ended: show everything found so far (the later phases say they are still running)."""
+        if run != self._run or not isinstance(report, CorpusReport):
+            return
+        self._finished.append(phase)
+        self.show_report(
+            report, {p: f"{PHASE_WORDS[p].capitalize()}: still running\u2026" for p in self._pending()}
+        )
+
+    def _pending(self) -> list[str]:
+        return [p for p in self._planned if p not in self._finished]
+
     def _done(self, lm: LoadedModel, result: object) -> None:
+        self.holds_model.emit(False)
         if lm is not self.lm:
             return
         if result == CANCELLED:
-            kept = "the results below are from the previous run" if self.report else "nothing was shown"
-            self.phase_label.setText(f"Cancelled \u2014 {kept}")
+            had_previous = self.report is not None and not self._finished
+            self.phase_label.setText(cancel_text(self._finished, self._current, had_previous))
+            for name in self._pending():
+                self.phase_bars[name].setFormat(f"{PHASE_TITLES[name]}: cancelled")
+            if self._finished and self.report is not None:
+                note = "{}: not finished, the run was cancelled"
+                self.show_report(
+                    self.report, {p: note.format(PHASE_WORDS[p].capitalize()) for p in self._pending()}
+                )
             self.status.emit("Corpus run cancelled")
             self.finished.emit("cancelled")
             return
@@ -570,6 +647,7 @@ class CorpusPage(QWidget):
         self.finished.emit("done")
 
     def _failed(self, text: str) -> None:
+        self.holds_model.emit(False)
         self.phase_label.setText("Failed \u2014 see the message above")
         self.data_note.setText(f"<b>Could not run:</b> {html.escape(text)}")
         self.error.emit(f"Corpus analysis: {text}")
@@ -592,10 +670,6 @@ class CorpusPage(QWidget):
         self.prune_button.setEnabled(has_heads and not running)
         for box in (self.order_box, self.count_box):
             box.setEnabled(pruned)
-        if not running:
-            self.progress.setRange(0, 1)
-            self.progress.setValue(1 if self.report is not None else 0)
-            self.progress.setFormat("" if self.report is None else "done")
 
     # -- showing -----------------------------------------------------------------------------------
     def clear(self, note: str) -> None:
@@ -610,8 +684,9 @@ class CorpusPage(QWidget):
         self.mask_label.setText("")
         self._set_running(self.is_running())
 
-    def show_report(self, report: CorpusReport) -> None:
-        """Fill every view from ``report``."""
+    def show_report(self, report: CorpusReport, waiting: dict[str, str] | None = None) -> None:
+        """Fill every view from ``report``; ``waiting`` maps a phase not in it yet to what its views say."""
+        self._waiting = dict(waiting or {})
         self.report = report
         self.loaded_mask = None
         self._fill_choosers(report)
@@ -695,7 +770,8 @@ class CorpusPage(QWidget):
         layers, heads = report.num_layers, report.num_heads
         imp = report.importance
         if imp is None:
-            self.importance_map.set_data(None, [], [], note="Head importance was not computed (switched off)")
+            note = self._waiting.get("importance", "Head importance was not computed (switched off)")
+            self.importance_map.set_data(None, [], [], note=note)
         else:
             values = imp.normalized
             self.importance_map.set_data(
@@ -727,6 +803,7 @@ class CorpusPage(QWidget):
             vmin=max(0.0, float(red.similarity.min())),
             vmax=1.0,
             block=heads,
+            block_names=[fmt.layer_name(l) for l in range(layers)],
             marked={(i, j) for i, j in members if i != j and i in grouped},
             describe=lambda i, j: (
                 f"{names[i]} vs {names[j]}: mean JS divergence {fmt.bits(red.js[i, j])} "
@@ -737,8 +814,10 @@ class CorpusPage(QWidget):
 
     def _fill_pruning(self, report: CorpusReport) -> None:
         total = report.num_layers * report.num_heads
-        self.plot.set_result(report.pruning, total, "No pruning order was chosen for this run")
-        text = html.escape(mask_text(report))
+        self.plot.set_result(
+            report.pruning, total, self._waiting.get("pruning", "No pruning order was chosen for this run")
+        )
+        text = html.escape(self._waiting.get("pruning", mask_text(report)))
         if self.loaded_mask is not None:
             text = (
                 f"<b>Loaded mask:</b> {count(len(self.loaded_mask), 'head')} off "

@@ -163,6 +163,27 @@ def _blend(colour: QColor, background: QColor) -> tuple[int, int, int, int]:
     ) + (255,)
 
 
+def fit_cells(avail_w: float, avail_h: float, layers: int, heads: int) -> tuple[int, int, int]:
+    """(cell, gap, lane) in pixels: the largest cells that fit, with the largest meter lane the size allows.
+
+    Printed numbers under cells of 46 pixels or more, a bar under smaller ones, a
+    thin bar (and 2-pixel gaps) under cells below 12 pixels.
+    """
+
+    def fit(gap: int, lane: int) -> int:
+        return int(min(avail_w / heads - gap, avail_h / layers - gap - lane))
+
+    gap, lane = 3, NUMBER_LANE
+    cell = fit(gap, lane)
+    if cell < 46:
+        lane = BAR_LANE
+        cell = fit(gap, lane)
+    if cell < 12:
+        gap, lane = 2, THIN_LANE
+        cell = fit(gap, lane)
+    return int(np.clip(cell, 2, MAX_CELL)), gap, lane
+
+
 class HeadGrid(HoverView):
     """All heads at a glance: click or use the arrow keys to pick one; switch heads off and on.
 
@@ -276,28 +297,24 @@ class HeadGrid(HoverView):
     def minimumSizeHint(self) -> QSize:
         return QSize(200, 160)
 
+    def _margins(self, layers: int) -> tuple[int, int]:
+        """(left, top): room for the layer names on the left and the head names on top."""
+        fm = self.fontMetrics()
+        return fm.horizontalAdvance(fmt.layer_name(layers - 1)) + 10, fm.height() + 4
+
+    def width_for_height(self, height: int, layers: int, heads: int) -> int:
+        """The width at which ``layers`` x ``heads`` cells are as large as ``height`` allows."""
+        left, top = self._margins(layers)
+        cell, gap, _lane = fit_cells(float("inf"), height - top - 4, layers, heads)
+        return left + heads * (cell + gap) + 4
+
     def grid_geometry(self) -> GridGeometry | None:
         if self.attention is None:
             return None
         L, H = self.attention.shape[:2]
-        fm = self.fontMetrics()
-        left = fm.horizontalAdvance(fmt.layer_name(L - 1)) + 10
-        top = fm.height() + 4
+        left, top = self._margins(L)
         avail_w, avail_h = self.width() - left - 4, self.height() - top - 4
-
-        def fit(gap: int, lane: int) -> int:
-            return int(min(avail_w / H - gap, avail_h / L - gap - lane))
-
-        # Largest meter lane the size allows: printed numbers, a bar, or a thin bar.
-        gap, lane = 3, NUMBER_LANE
-        cell = fit(gap, lane)
-        if cell < 46:
-            lane = BAR_LANE
-            cell = fit(gap, lane)
-        if cell < 12:
-            gap, lane = 2, THIN_LANE
-            cell = fit(gap, lane)
-        cell = int(np.clip(cell, 2, MAX_CELL))
+        cell, gap, lane = fit_cells(avail_w, avail_h, L, H)
         used_w = H * (cell + gap) - gap
         used_h = L * (cell + lane + gap) - gap
         left += max((avail_w - used_w) // 2, 0)
@@ -330,7 +347,11 @@ class HeadGrid(HoverView):
 
     def number_texts(self) -> list[list[str]]:
         """The metric value printed under each cell, [layer][head] (when the cells are large enough)."""
-        return [[fmt.weight(v, 2) for v in row] for row in np.asarray(self.metric_values)]
+        # NaN: a meter left empty on purpose (see SentencePage.metric_hidden), no number printed
+        return [
+            [fmt.weight(v, 2) if np.isfinite(v) else "" for v in row]
+            for row in np.asarray(self.metric_values)
+        ]
 
     def drawn_text(self) -> list[str]:
         geo = self.grid_geometry()
@@ -339,7 +360,7 @@ class HeadGrid(HoverView):
         ticks = [fmt.head_tick(h) for h in range(geo.heads)] + [fmt.layer_name(l) for l in range(geo.layers)]
         numbers = self.number_texts() if geo.lane == NUMBER_LANE and self.metric_values is not None else []
         off = ["off"] * len(self._off) if geo.cell >= 30 else []
-        return ticks + [text for row in numbers for text in row] + off
+        return ticks + [text for row in numbers for text in row if text] + off
 
     def _print_numbers(self, image: QImage, geo: GridGeometry) -> None:
         p = QPainter(image)
@@ -427,9 +448,10 @@ class HeadGrid(HoverView):
             is_sel = layer == sel_layer
             p.setFont(bold if is_sel else self.font())
             p.setPen(accent(pal) if is_sel else dim)
+            # A line-high box centred on the cell, never clipped: cells may be thinner than the text.
             p.drawText(
-                QRect(0, r.y(), geo.left - 6, geo.cell),
-                Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
+                QRect(0, r.center().y() - fm.height() // 2, geo.left - 6, fm.height()),
+                Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter | Qt.TextFlag.TextDontClip,
                 fmt.layer_name(layer),
             )
         p.setFont(self.font())

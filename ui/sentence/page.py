@@ -6,9 +6,12 @@ views; the views only paint and forward clicks and keys back here.
 
 from __future__ import annotations
 
-from PySide6.QtCore import QPoint, QSettings, Qt, Signal
-from PySide6.QtGui import QAction, QKeySequence
+import html
+
+from PySide6.QtCore import QEvent, QPoint, QSettings, Qt, QTimer, Signal
+from PySide6.QtGui import QAction, QKeySequence, QPalette
 from PySide6.QtWidgets import (
+    QCheckBox,
     QComboBox,
     QDoubleSpinBox,
     QHBoxLayout,
@@ -33,14 +36,20 @@ from ui.sentence.bar import SentenceBar
 from ui.sentence.close_up import CloseUp
 from ui.sentence.head_grid import HeadGrid
 from ui.sentence.pair_state import PairState
-from ui.sentence.relevance_band import RelevanceBand
+from ui.sentence.relevance_band import BandScroll, RelevanceBand
 from ui.sentence.second_model import SecondModelStrip
 from ui.sentence.state import LINK_MODES, RELEVANCE_SOURCES, SOURCES, SentencePage, metric_range
 from ui.sentence.token_arcs import TokenArcs
+from ui.widgets.colormap import accent, dim_text
 from ui.widgets.legend import ColourKey, MeterKey
 from ui.widgets.mask_files import MaskFiles
-from ui.widgets.panel import Panel, column
+from ui.widgets.panel import ElidedLabel, Panel, column
 from ui.widgets.worker import JobRunner
+
+COMBO_CHARS = 13
+"""Width of the sentence page's choice boxes, in characters."""
+STALE_AFTER_MS = 400
+"""The out-of-date note appears when the views still show an earlier text this long after an edit."""
 
 
 def column_layout(items: list) -> QVBoxLayout:
@@ -58,7 +67,10 @@ def _combo(parent: QWidget, items: dict[str, str], name: str) -> QComboBox:
     box.setAccessibleName(name)
     for key, text in items.items():
         box.addItem(text, key)
-    box.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
+    # A fixed width from a few characters: the panel never changes width with the choice,
+    # and a long entry is shortened in the closed box (the list shows it whole).
+    box.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+    box.setMinimumContentsLength(min(max(len(t) for t in items.values()), COMBO_CHARS))
     return box
 
 
@@ -104,6 +116,7 @@ class SentencePageWidget(QWidget):
         self.closeup = CloseUp(self)
         self.arcs = TokenArcs(self)
         self.band = RelevanceBand(self)
+        self.band_scroll = BandScroll(self.band, self)
 
         # toggles shared with the View menu
         self.words_action = QAction("Merge pieces into &words", self, checkable=True)
@@ -133,23 +146,30 @@ class SentencePageWidget(QWidget):
         self.arcs_panel = self._arcs_panel()
         self.band_panel = self._band_panel()
 
-        right = QSplitter(Qt.Orientation.Vertical, self)
-        right.addWidget(self.closeup_panel)
-        right.addWidget(self.arcs_panel)
-        right.setStretchFactor(0, 3)
-        right.setStretchFactor(1, 2)
-        right.setSizes([500, 260])
+        # The close-up gets the full height of the right side; the mosaic (height-bound
+        # on a laptop screen) shares the left side with the token arcs.
+        left = QSplitter(Qt.Orientation.Vertical, self)
+        left.addWidget(self.mosaic_panel)
+        left.addWidget(self.arcs_panel)
+        left.setStretchFactor(0, 3)
+        left.setStretchFactor(1, 1)
+        left.setSizes([1000, 150])
         top = QSplitter(Qt.Orientation.Horizontal, self)
-        top.addWidget(self.mosaic_panel)
-        top.addWidget(right)
-        top.setStretchFactor(0, 5)
-        top.setStretchFactor(1, 4)
+        top.addWidget(left)
+        top.addWidget(self.closeup_panel)
+        top.setStretchFactor(0, 1)
+        top.setStretchFactor(1, 1)
+        top.setSizes([500, 700])
+        self.top_split = top
+        self._balanced_for: tuple[int, int] | None = None
         main = QSplitter(Qt.Orientation.Vertical, self)
         main.addWidget(top)
         main.addWidget(self.band_panel)
         main.setStretchFactor(0, 5)
         main.setStretchFactor(1, 1)
+        main.setSizes([500, 150])
         main.setChildrenCollapsible(False)
+        self.views = main
 
         self.caution = QLabel(f"<b>Read with care:</b> {CAUTION}", self)
         self.caution.setWordWrap(True)
@@ -157,6 +177,20 @@ class SentencePageWidget(QWidget):
         self.caution.setContentsMargins(8, 2, 8, 4)
 
         column(self, [self.bar, (main, 1), self.caution], margins=(6, 4, 6, 4), spacing=6)
+
+        # Over the views (no layout jump): says when they still show an earlier text.
+        self.stale_note = QLabel("", self)
+        self.stale_note.setAccessibleName("Views out of date")
+        self.stale_note.setWordWrap(True)
+        self.stale_note.setAutoFillBackground(True)
+        self.stale_note.hide()
+        self.waiting_reason = ""
+        """Why an analysis may wait (a corpus run holding the model), shown in the stale note."""
+        self._stale_timer = QTimer(self)
+        self._stale_timer.setSingleShot(True)
+        self._stale_timer.setInterval(STALE_AFTER_MS)
+        self._stale_timer.timeout.connect(self.update_stale_note)
+        self.bar.entry.textChanged.connect(lambda _t: self._stale_timer.start())
 
         self.grid.head_clicked.connect(self.select_head)
         self.grid.move_requested.connect(self.move_head)
@@ -174,6 +208,7 @@ class SentencePageWidget(QWidget):
             view.query_clicked.connect(self.set_query)
             view.query_move.connect(self.move_query)
         self.closeup.hovered.connect(self.status.emit)
+        self.closeup.zoom_changed.connect(self.zoom_label.setText)
         self.bar.expected_changed.connect(self._expected_changed)
         self.clear()
 
@@ -351,17 +386,20 @@ class SentencePageWidget(QWidget):
         panel.add_control(self.scale_box, "Sc&ale:")
         self.colour_key = ColourKey(panel)
         self.meter_key = MeterKey(panel)
-        keys = QVBoxLayout()
-        keys.setSpacing(0)
+        keys = QHBoxLayout()
+        keys.setSpacing(18)
         keys.addWidget(self.colour_key)
         keys.addWidget(self.meter_key)
-        panel.footer.addLayout(keys)
         self.wedge_key = QLabel("", panel)
         self.wedge_key.setWordWrap(True)
         self.wedge_key.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         self.wedge_key.setToolTip("Hover a head in either mosaic for its numbers and B's closest head of A")
         self.wedge_key.hide()
-        panel.footer.addWidget(self.wedge_key, 1)
+        rows = QVBoxLayout()
+        rows.setSpacing(2)
+        rows.addLayout(keys)
+        rows.addWidget(self.wedge_key)  # only with a second model: no height otherwise
+        panel.footer.addLayout(rows, 1)
         return panel
 
     def _heads_controls(self) -> None:
@@ -390,7 +428,22 @@ class SentencePageWidget(QWidget):
         for action in (self.words_action, self.special_action):
             button = QToolButton(panel)
             button.setDefaultAction(action)
-            panel.header.addWidget(button)
+            panel.footer.addWidget(button)
+        panel.footer.addSpacing(12)
+        for text, tip, slot in (
+            ("\u2212", "Zoom out (\u2212 or the wheel)", self.closeup.zoom_out),
+            ("+", "Zoom in (+ or the wheel; drag or Left/Right, Page Up/Down to pan)", self.closeup.zoom_in),
+            ("Fit", "Show the whole matrix (0)", self.closeup.fit),
+        ):
+            button = QToolButton(panel)
+            button.setText(text)
+            button.setToolTip(tip)
+            button.setAutoRaise(True)
+            button.clicked.connect(slot)
+            panel.footer.addWidget(button)
+        panel.footer.setSpacing(4)
+        self.zoom_label = ElidedLabel("whole matrix", panel)
+        panel.footer.addWidget(self.zoom_label, 1)
         return panel
 
     def _arcs_panel(self) -> Panel:
@@ -400,7 +453,8 @@ class SentencePageWidget(QWidget):
         scroll.setFrameShape(QScrollArea.Shape.NoFrame)
         scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAsNeeded)
         scroll.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
-        scroll.setMinimumHeight(150)
+        scroll.setMinimumHeight(84)
+        self.arcs_scroll = scroll
         panel = Panel("Token arcs", scroll, self)
         self.links_box = _combo(panel, LINK_MODES, "Arc mode")
         self.links_box.currentIndexChanged.connect(self._links_mode_changed)
@@ -414,23 +468,52 @@ class SentencePageWidget(QWidget):
         self.threshold_box.valueChanged.connect(lambda v: self.set_option("threshold", float(v)))
         panel.add_control(self.links_box, "Li&nks:")
         panel.add_control(self.threshold_box, "\u2265")
-        hint = QLabel(
+        self.arcs_hint = ElidedLabel(
             "above the line: looks back \u00b7 below: looks ahead \u00b7 thicker = more weight", panel
         )
-        hint.setEnabled(False)
-        panel.footer.addWidget(hint)
+        self.arcs_hint.setToolTip(self.arcs_hint.text())
+        self._dim(self.arcs_hint)
+        panel.footer.addWidget(self.arcs_hint, 1)
         return panel
 
     def _band_panel(self) -> Panel:
-        panel = Panel("Relevance band", self.band, self)
+        panel = Panel("Relevance band", self.band_scroll, self)
         self.relevance_box = _combo(panel, RELEVANCE_SOURCES, "Relevance source")
         self.relevance_box.currentIndexChanged.connect(
             lambda _i: self.set_option("relevance", self.relevance_box.currentData())
         )
         panel.add_control(self.relevance_box, "&From:")
         self.band_key = ColourKey(panel)
+        self.band_key.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Fixed)
         panel.footer.addWidget(self.band_key)
+        self.band_caption = ElidedLabel("", panel)
+        panel.footer.addWidget(self.band_caption, 1)
+        self.own_check = QCheckBox("Scale includes its own entry", panel)
+        self.own_check.setToolTip(
+            "The classification token's relevance to itself is usually far above every other token's; "
+            "left out (the default), the other tokens are shaded against each other"
+        )
+        self.own_check.toggled.connect(lambda on: self.set_option("relevance_own", on))
+        panel.footer.addWidget(self.own_check)
         return panel
+
+    def _fit_band_panel(self) -> None:
+        """Let the relevance band's panel grow no taller than its chips need (the views above get the rest)."""
+        chrome = self.band_panel.sizeHint().height() - self.band_scroll.sizeHint().height()
+        needed = self.band.heightForWidth(self.band_scroll.viewport().width())
+        self.band_panel.setMaximumHeight(max(chrome + needed, self.band_panel.minimumSizeHint().height()))
+
+    def _dim(self, label: QLabel) -> None:
+        """Secondary text in a dimmer shade of the text colour (readable, unlike the disabled grey)."""
+        pal = QPalette(label.palette())
+        pal.setColor(QPalette.ColorRole.WindowText, dim_text(self.palette(), 0.7))
+        label.setPalette(pal)
+
+    def changeEvent(self, event: QEvent) -> None:
+        if event.type() == QEvent.Type.PaletteChange and hasattr(self, "arcs_hint"):
+            self._dim(self.arcs_hint)
+            self._style_stale_note()
+        super().changeEvent(event)
 
     # -- model and analysis ------------------------------------------------------------------------
     def set_model(self, lm: LoadedModel) -> None:
@@ -455,13 +538,16 @@ class SentencePageWidget(QWidget):
         self.closeup.set_data(None, [], [], note=note)
         self.arcs.set_data(None, [], [], query=0, mode="query", threshold=0.1, note=note)
         self.band.set_data(None, [], [], note=note)
+        self.band_scroll.fit_band()
+        self.band_caption.setText("")
+        self.update_stale_note()
         self.bar.set_prediction(None, misfire=False)
         self._mask_enabled()
         for panel in (self.mosaic_panel, self.closeup_panel, self.arcs_panel, self.band_panel):
             panel.set_subtitle("")
-        self.colour_key.set_text("Colour: attention weight", "0", "max")
-        self.meter_key.set_text("Meter:", "", "")
-        self.band_key.set_text("Shade: relevance", "0", "max")
+        self.colour_key.set_text("Colour:", "0", "max")
+        self.meter_key.set_text("Bar:", "", "")
+        self.band_key.set_text("Shade:", "0", "max")
 
     def apply_analysis(self, analysis: SentenceAnalysis, full: Prediction | None = None) -> None:
         """Show a fresh analysis in every view (GUI thread).
@@ -473,6 +559,47 @@ class SentencePageWidget(QWidget):
             self.state.set_full_prediction(analysis.text, full or analysis.prediction)
         self.state.set_analysis(analysis)
         self.refresh()
+        self.update_stale_note()
+
+    # -- out-of-date views -------------------------------------------------------------------------
+    def is_stale(self) -> bool:
+        """True when the views show an analysis of another text than the one in the entry."""
+        a = self.state.analysis
+        text = self.bar.entry.text()
+        return a is not None and bool(text.strip()) and a.text != text
+
+    def update_stale_note(self) -> None:
+        """Show or hide the note that says the views belong to an earlier text."""
+        if not self.is_stale():
+            self.stale_note.hide()
+            return
+        old = self.state.analysis.text
+        shown = old if len(old) <= 60 else old[:57] + "\u2026"
+        why = self.waiting_reason or "analysing the new text\u2026"
+        self.stale_note.setText(
+            f"<b>Out of date:</b> the views below show \u2018{html.escape(shown)}\u2019 \u2014 {why}"
+        )
+        self._style_stale_note()
+        self._place_stale_note()
+        self.stale_note.show()
+        self.stale_note.raise_()
+
+    def _style_stale_note(self) -> None:
+        colour = accent(self.palette()).name()
+        self.stale_note.setStyleSheet(
+            f"QLabel {{ border: 1px solid {colour}; border-left: 5px solid {colour}; padding: 4px 8px; }}"
+        )
+
+    def _place_stale_note(self) -> None:
+        area = self.views.geometry()
+        width = min(area.width() - 40, 720)
+        height = self.stale_note.heightForWidth(width)
+        self.stale_note.setGeometry(area.x() + (area.width() - width) // 2, area.y() + 28, width, height)
+
+    def resizeEvent(self, event: object) -> None:
+        super().resizeEvent(event)
+        if self.stale_note.isVisible():
+            self._place_stale_note()
 
     # -- changes from the user ---------------------------------------------------------------------
     def set_option(self, name: str, value: object) -> None:
@@ -579,6 +706,30 @@ class SentencePageWidget(QWidget):
         )
 
     # -- pushing state into the views --------------------------------------------------------------
+    def balance_mosaic(self) -> None:
+        """Give the mosaic the width its cells use at the current height (once per model shape).
+
+        A 12 x 12 mosaic is height-bound on a laptop screen: width beyond its square
+        cells is better spent on the close-up. Kept between a third and 60% of the row.
+        """
+        a = self.state.analysis
+        if a is None or self._balanced_for == (a.num_layers, a.num_heads):
+            return
+        total = sum(self.top_split.sizes())
+        if total <= 0 or self.grid.height() <= 0:
+            return
+        self._balanced_for = (a.num_layers, a.num_heads)
+        extra = self.mosaic_panel.width() - self.grid.width()
+        needed = self.grid.width_for_height(self.grid.height(), a.num_layers, a.num_heads) + extra
+        sub = self.mosaic_panel.subtitle
+        header = (
+            self.mosaic_panel.minimumSizeHint().width()
+            + sub.sizeHint().width()
+            - sub.minimumSizeHint().width()
+        )
+        width = int(min(max(needed, header, total * 0.4), 0.6 * total))
+        self.top_split.setSizes([width, total - width])
+
     def refresh(self) -> None:
         """Push the whole state into every view."""
         st = self.state
@@ -592,23 +743,35 @@ class SentencePageWidget(QWidget):
                 heads, metric, (lo, hi), per_head=st.options.scale == "own", summary=self._summary_a
             )
             self._grid_input = key
-            self.colour_key.set_text(
-                "Colour = attention weight", "0", "each head's largest" if st.options.scale == "own" else "1"
-            )
-            self.meter_key.set_text(f"Bar = {st.metric_label()}", fmt.number(lo), fmt.number(hi))
+            self.colour_key.set_text("Colour:", "0", "each head's max" if st.options.scale == "own" else "1")
+            if st.metric_hidden():
+                self.meter_key.set_text("Bar: empty (special tokens hidden)", "", "")
+                tip = f"{st.metric_label()} is not shown while special tokens are hidden"
+            else:
+                self.meter_key.set_text("Bar:", fmt.number(lo), fmt.number(hi))
+                tip = f"Bar under each cell: {st.metric_label()}, {fmt.number(lo)} to {fmt.number(hi)}"
+            self.meter_key.setToolTip(tip)
         a = st.analysis
         self.grid.set_off(set(st.mask.heads))
-        self.mosaic_panel.set_subtitle(
-            f"{a.num_layers}\u00d7{a.num_heads} \u00b7 {fmt.count(len(st.view().labels), 'token')}"
-        )
+        self.mosaic_panel.set_subtitle(f"{a.num_layers}\u00d7{a.num_heads} \u00b7 {st.axis_text()}")
         self._mask_enabled()
         rel = st.relevance()
-        self.band.set_data(rel.values, rel.labels, rel.special, rel.note)
+        self.band.set_data(
+            rel.values, rel.labels, rel.special, rel.note, vmax=rel.vmax, excluded=rel.excluded
+        )
+        self.band_scroll.fit_band()
+        self._fit_band_panel()
         self.band_panel.set_subtitle(f"{rel.source} \u00b7 {rel.note}")
-        top = "max" if rel.values is None else fmt.weight(rel.values.max())
-        self.band_key.set_text("Shade: relevance of each token for the prediction,", "0", top)
+        top = "max" if rel.values is None else fmt.weight(rel.vmax)
+        left_out = (
+            "" if rel.excluded is None else f" (\u2018{rel.labels[rel.excluded]}\u2019 itself left out)"
+        )
+        self.band_key.set_text("Shade:", "0", top + left_out)
+        self.band_caption.setText(f"{rel.source}: {rel.meaning}")
+        self.band_caption.setToolTip(self.band_caption.text())
         self._refresh_prediction()
         self._refresh_second()
+        QTimer.singleShot(0, self.balance_mosaic)  # once the new subtitle is laid out
         self.refresh_selection()
         self._request_flow()
 
@@ -636,7 +799,18 @@ class SentencePageWidget(QWidget):
         )
         query_text = f"query \u2018{focus.labels[query]}\u2019" if focus.labels else ""
         self.arcs_panel.set_subtitle(f"{focus.view} \u00b7 {focus.where} \u00b7 {query_text}")
+        self.zoom_label.setText(self.closeup.zoom_text())
+        QTimer.singleShot(0, self.show_query_arc)
         self.views_updated.emit()
+
+    def show_query_arc(self) -> None:
+        """Scroll the token arcs sideways so that the query token is in view."""
+        boxes = self.arcs.boxes()
+        query = self.arcs.query
+        if 0 <= query < len(boxes):
+            box = boxes[query]
+            margin = int(min(box.width() / 2 + 60, self.arcs_scroll.viewport().width() / 3))
+            self.arcs_scroll.ensureVisible(int(box.center().x()), int(box.center().y()), margin, 0)
 
     def _refresh_prediction(self) -> None:
         a = self.state.analysis

@@ -36,6 +36,16 @@ RELEVANCE_SOURCES: dict[str, str] = {
 }
 """Where the relevance band takes the classification token's row from."""
 
+RELEVANCE_MEANINGS: dict[str, str] = {
+    "rollout": "attention rolled up through every layer from the classification token "
+    "(head mean plus the residual path); it does not depend on the predicted label",
+    "flow": "largest attention flow from the classification token to each token through every layer; "
+    "it does not depend on the predicted label",
+    "value": "the classification token's last-layer attention weighted by the size of each token's "
+    "transformed value, renormalised; it does not depend on the predicted label",
+}
+"""What each relevance source measures, for the band's caption (none of them is label-specific)."""
+
 SCALES: dict[str, str] = {
     "own": "each head from 0 to its own largest weight",
     "shared": "every head from 0 to 1",
@@ -89,6 +99,8 @@ class ViewOptions:
     links: str = "query"
     threshold: float = 0.15
     scale: str = "own"
+    relevance_own: bool = False
+    """Let the classification token's own entry set the relevance band's colour scale."""
 
 
 @dataclass
@@ -116,6 +128,12 @@ class RelevanceData:
     special: np.ndarray
     source: str
     note: str = ""
+    vmax: float = 1.0
+    """Top of the colour scale: the largest value, leaving out ``excluded`` when that is set."""
+    excluded: int | None = None
+    """Position of the classification token's own entry when it is left out of the scale."""
+    meaning: str = ""
+    """What the source measures, in words."""
 
 
 @dataclass(frozen=True)
@@ -325,8 +343,28 @@ class SentencePage:
         return self._cache[key]
 
     def metric_values(self) -> np.ndarray:
-        """The chosen metric for every head, [layers, heads] (computed on pieces by the core)."""
-        return np.asarray(self._require().head_metrics.get(self.options.metric), dtype=np.float64)
+        """The chosen metric for every head, [layers, heads] (computed on pieces by the core).
+
+        All NaN when the metric means nothing for what is shown (see :meth:`metric_hidden`).
+        """
+        key = ("metric",)
+        if key not in self._cache:
+            values = np.asarray(self._require().head_metrics.get(self.options.metric), dtype=np.float64)
+            self._cache[key] = np.full_like(values, np.nan) if self.metric_hidden() else values
+        return self._cache[key]
+
+    def metric_hidden(self) -> bool:
+        """True when the meter is left empty: the special-token share while special tokens are hidden."""
+        return self.options.metric == "special_share" and self.options.hide_special
+
+    def axis_text(self) -> str:
+        """How many tokens the views show, named for what they are: ``13 words`` or ``17 tokens``."""
+        view = self.view()
+        shown = fmt.count(len(view.labels), "word" if self.options.words else "token")
+        if self.options.hide_special:
+            hidden = int(np.count_nonzero(self._require().special))
+            return f"{shown} ({fmt.count(hidden, 'special token')} hidden)"
+        return shown
 
     def metric_label(self) -> str:
         return METRIC_LABELS[self.options.metric]
@@ -391,7 +429,11 @@ class SentencePage:
         """The classification token's row of rollout / flow / value-weighted attention on the shown tokens.
 
         Piece values are summed within a word; with special tokens hidden the
-        shown values are renormalised to sum to 1.
+        shown values are renormalised to sum to 1. The classification token's
+        entry on itself is usually far larger than any other (in rollout, the
+        residual path keeps much of its own weight), so by default it is left
+        out of the colour scale (``options.relevance_own`` puts it back) and the
+        other tokens are shaded against each other.
         """
         key = ("relevance", self.options.relevance)
         if key in self._cache:
@@ -412,12 +454,26 @@ class SentencePage:
             row = last / max(float(last.sum()), 1e-12)
         else:
             raise KeyError(src)
-        values = None
+        values, vmax, excluded = None, 1.0, None
         if row is not None:
             values = np.array([float(np.sum(row[g])) for g in view.groups])
             if self.options.hide_special and values.sum() > 0:
                 values = values / values.sum()
-        data = RelevanceData(values, list(view.labels), view.special, RELEVANCE_SOURCES[src], note)
+            own = next((i for i, g in enumerate(view.groups) if cls in g), None)
+            if not self.options.relevance_own and own is not None and values.size > 1:
+                excluded = own
+            rest = np.delete(values, excluded) if excluded is not None else values
+            vmax = float(max(rest.max(), 1e-12)) if rest.size else 1.0
+        data = RelevanceData(
+            values,
+            list(view.labels),
+            view.special,
+            RELEVANCE_SOURCES[src],
+            note,
+            vmax,
+            excluded,
+            RELEVANCE_MEANINGS[src],
+        )
         self._cache[key] = data
         return data
 

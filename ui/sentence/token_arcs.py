@@ -74,7 +74,7 @@ class TokenArcs(HoverView):
         return arc_links(self.matrix, self.query, self.mode, self.threshold)
 
     # -- layout ------------------------------------------------------------------------------------
-    def _boxes(self) -> list[QRectF]:
+    def boxes(self) -> list[QRectF]:
         font, pad, spacing = self._fitted()
         fm = QFontMetricsF(font)
         widths = [fm.horizontalAdvance(short_label(t, 18)) + 2 * pad for t in self.labels]
@@ -117,6 +117,9 @@ class TokenArcs(HoverView):
         """(font, padding, spacing) shrunk just enough for the tokens to fit the width, within MIN_SCALE."""
         natural = self._natural_width(1.0)
         scale = 1.0 if natural <= self.width() else max(MIN_SCALE, self.width() / natural)
+        # Text does not shrink exactly in proportion to the font size: step down until it fits.
+        while scale > MIN_SCALE and self._natural_width(scale) > self.width():
+            scale = max(MIN_SCALE, scale - 0.02)
         return self._scaled_font(scale), PAD * scale, SPACING * scale
 
     def _content_width(self) -> int:
@@ -126,13 +129,13 @@ class TokenArcs(HoverView):
         return QSize(max(self._content_width(), 400), 220)
 
     def minimumSizeHint(self) -> QSize:
-        return QSize(200, 130)
+        return QSize(200, 80)
 
     def hit_at(self, x: float, y: float) -> int | None:
         return self.token_at(x, y)
 
     def token_at(self, x: float, y: float) -> int | None:
-        for i, box in enumerate(self._boxes()):
+        for i, box in enumerate(self.boxes()):
             if box.adjusted(-SPACING / 2, -6, SPACING / 2, 14).contains(QPointF(x, y)):
                 return i
         return None
@@ -144,7 +147,7 @@ class TokenArcs(HoverView):
             return
         p.setRenderHint(QPainter.RenderHint.Antialiasing)
         pal = self.palette()
-        boxes = self._boxes()
+        boxes = self.boxes()
         if self.mode == "threshold" and not self.links():
             p.setPen(pal.color(QPalette.ColorRole.PlaceholderText))
             p.drawText(

@@ -23,6 +23,8 @@ class _Key(QWidget):
     """A caption, a low label, a sample mark and a high label on one line."""
 
     SAMPLE_WIDTH = 120
+    MIN_SAMPLE_WIDTH = 36
+    """On a narrow panel the sample shrinks to this before the caption is shortened."""
 
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)
@@ -48,7 +50,7 @@ class _Key(QWidget):
         return QSize(width, fm.height() + 6)
 
     def minimumSizeHint(self) -> QSize:
-        return QSize(self.SAMPLE_WIDTH + 60, self.fontMetrics().height() + 6)
+        return QSize(self.MIN_SAMPLE_WIDTH + 60, self.fontMetrics().height() + 6)
 
     def draw_sample(self, painter: QPainter, rect: QRect) -> None:
         raise NotImplementedError
@@ -59,15 +61,22 @@ class _Key(QWidget):
         h = self.height()
         p.setPen(self.palette().color(QPalette.ColorRole.WindowText))
         x = 0
-        caption = fm.elidedText(self._caption, Qt.TextElideMode.ElideRight, max(self.width() // 2, 40))
+        ends = fm.horizontalAdvance(self._low) + fm.horizontalAdvance(self._high) + 22
+        # The numbers at both ends are never cut: the sample shrinks first, then the caption.
+        sample = int(
+            max(min(self.SAMPLE_WIDTH, self.width() - ends - fm.horizontalAdvance(self._caption)), 0)
+        )
+        sample = max(sample, self.MIN_SAMPLE_WIDTH)
+        room = max(self.width() - ends - sample, 20)
+        caption = fm.elidedText(self._caption, Qt.TextElideMode.ElideRight, room)
         p.drawText(QRect(x, 0, fm.horizontalAdvance(caption) + 2, h), Qt.AlignmentFlag.AlignVCenter, caption)
         x += fm.horizontalAdvance(caption) + 10
         p.drawText(
             QRect(x, 0, fm.horizontalAdvance(self._low) + 2, h), Qt.AlignmentFlag.AlignVCenter, self._low
         )
         x += fm.horizontalAdvance(self._low) + 5
-        self.draw_sample(p, QRect(x, (h - 10) // 2, self.SAMPLE_WIDTH, 10))
-        x += self.SAMPLE_WIDTH + 5
+        self.draw_sample(p, QRect(x, (h - 10) // 2, sample, 10))
+        x += sample + 5
         p.drawText(QRect(x, 0, self.width() - x, h), Qt.AlignmentFlag.AlignVCenter, self._high)
         p.end()
 

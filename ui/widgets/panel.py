@@ -2,9 +2,18 @@
 
 from __future__ import annotations
 
-from PySide6.QtCore import QEvent, Qt, Signal
-from PySide6.QtGui import QFont, QPalette
-from PySide6.QtWidgets import QFrame, QGridLayout, QHBoxLayout, QLabel, QToolButton, QVBoxLayout, QWidget
+from PySide6.QtCore import QEvent, QSize, Qt, Signal
+from PySide6.QtGui import QFont, QPainter, QPalette
+from PySide6.QtWidgets import (
+    QFrame,
+    QGridLayout,
+    QHBoxLayout,
+    QLabel,
+    QSizePolicy,
+    QToolButton,
+    QVBoxLayout,
+    QWidget,
+)
 
 from ui.widgets.colormap import accent, dim_text
 
@@ -25,6 +34,33 @@ def column(
     return layout
 
 
+class ElidedLabel(QLabel):
+    """One line of plain text that shortens itself with an ellipsis instead of widening its parent.
+
+    The whole text stays in the tooltip, so nothing is lost on a narrow screen.
+    """
+
+    MIN_WIDTH = 40
+
+    def __init__(self, text: str = "", parent: QWidget | None = None) -> None:
+        super().__init__(text, parent)
+        self.setTextFormat(Qt.TextFormat.PlainText)
+        self.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Preferred)
+
+    def minimumSizeHint(self) -> QSize:
+        return QSize(min(self.MIN_WIDTH, super().sizeHint().width()), super().minimumSizeHint().height())
+
+    def shown_text(self) -> str:
+        """The text as painted at the current width."""
+        return self.fontMetrics().elidedText(self.text(), Qt.TextElideMode.ElideRight, self.width())
+
+    def paintEvent(self, _event: object) -> None:
+        p = QPainter(self)
+        p.setPen(self.palette().color(QPalette.ColorRole.WindowText))
+        p.drawText(self.rect(), int(self.alignment() | Qt.AlignmentFlag.AlignVCenter), self.shown_text())
+        p.end()
+
+
 class Panel(QFrame):
     """A view with a bold title, a dimmer subtitle, controls on the right and a body below."""
 
@@ -37,8 +73,7 @@ class Panel(QFrame):
         font = QFont(self.title.font())
         font.setBold(True)
         self.title.setFont(font)
-        self.subtitle = QLabel("", self)
-        self.subtitle.setTextFormat(Qt.TextFormat.PlainText)
+        self.subtitle = ElidedLabel("", self)
         self._dim_subtitle()
         self.header = QHBoxLayout()
         self.header.setContentsMargins(8, 6, 8, 2)
