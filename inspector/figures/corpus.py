@@ -17,6 +17,7 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter
 
 from inspector import formatting as fmt
+from inspector import palette
 from inspector.corpus.importance import HeadImportance
 from inspector.corpus.pruning import PruningResult
 from inspector.corpus.redundancy import Redundancy
@@ -24,10 +25,13 @@ from inspector.corpus.run import Evaluation
 from inspector.figures.files import atomic_write
 
 FIGURE_FORMATS: tuple[str, ...] = ("png", "svg")
-_CMAP_COUNTS = "Blues"
-_CMAP_HEADS = "viridis"
-_CMAP_SIMILARITY = "magma"
 _ANNOTATE_UP_TO = 20
+ORDER_STYLES: tuple[tuple[str, str, str], ...] = (
+    ("-", "o", palette.INK),
+    ("--", "s", "#5f5f5f"),
+    (":", "^", "#8a8a8a"),
+)
+"""(line style, marker, grey) per pruning order, as the window's pruning plot draws them."""
 
 
 def _figure(width: float, height: float) -> Figure:
@@ -52,7 +56,8 @@ def confusion_figure(evaluation: Evaluation) -> Figure:
     fig = _figure(side + 1.0, side)
     ax = fig.add_axes((0.28, 0.26, 0.62, 0.66))
     share = cm / np.maximum(cm.sum(1, keepdims=True), 1)
-    im = ax.imshow(share, cmap=_CMAP_COUNTS, vmin=0, vmax=1)
+    cmap = palette.sequential_map()
+    im = ax.imshow(share, cmap=cmap, vmin=0, vmax=1)
     ax.set_xticks(range(n), evaluation.labels, rotation=60, ha="right", fontsize=8)
     ax.set_yticks(range(n), evaluation.labels, fontsize=8)
     ax.set_xlabel("predicted intent")
@@ -68,7 +73,7 @@ def confusion_figure(evaluation: Evaluation) -> Figure:
                         ha="center",
                         va="center",
                         fontsize=7,
-                        color="white" if share[i, j] > 0.5 else "black",
+                        color=palette.text_on(cmap(float(share[i, j]))),
                     )
     bar = fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03, label="share of the gold row")
     bar.ax.yaxis.set_major_formatter(PERCENT_TICKS)
@@ -80,15 +85,16 @@ def confusion_figure(evaluation: Evaluation) -> Figure:
     return fig
 
 
-def _head_grid(ax, values: np.ndarray, decimals: int, cmap: str) -> object:
+def _head_grid(ax, values: np.ndarray, decimals: int) -> object:
     layers, heads = values.shape
-    im = ax.imshow(values, cmap=cmap, aspect="auto")
+    cmap = palette.sequential_map()
+    top = float(np.nanmax(values)) if values.size else 0.0
+    im = ax.imshow(values, cmap=cmap, aspect="auto", vmin=0.0, vmax=top or 1.0)
     ax.set_xticks(range(heads), [fmt.head_tick(h) for h in range(heads)])
     ax.set_yticks(range(layers), [fmt.layer_name(l) for l in range(layers)])
     ax.set_xlabel("head")
     ax.set_ylabel("layer")
     if layers * heads <= 16 * 16:
-        top = np.nanmax(values) if values.size else 0
         for l in range(layers):
             for h in range(heads):
                 ax.text(
@@ -98,7 +104,7 @@ def _head_grid(ax, values: np.ndarray, decimals: int, cmap: str) -> object:
                     ha="center",
                     va="center",
                     fontsize=7,
-                    color="black" if values[l, h] > 0.6 * top else "white",
+                    color=palette.text_on(cmap(float(values[l, h]) / (top or 1.0))),
                 )
     return im
 
@@ -108,7 +114,7 @@ def importance_figure(importance: HeadImportance) -> Figure:
     layers, heads = importance.normalized.shape
     fig = _figure(max(5.0, 0.55 * heads + 2.5), max(3.2, 0.45 * layers + 1.8))
     ax = fig.add_axes((0.1, 0.2, 0.75, 0.7))
-    im = _head_grid(ax, importance.normalized, 2, _CMAP_HEADS)
+    im = _head_grid(ax, importance.normalized, 2)
     fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03, label="importance (l2-normalised per layer)")
     ax.set_title("Head importance: mean |dL/d gate| over the set", fontsize=10)
     _caption(
@@ -127,7 +133,7 @@ def similarity_figure(redundancy: Redundancy) -> Figure:
     fig = _figure(side + 1.2, side)
     ax = fig.add_axes((0.1, 0.12, 0.75, 0.8))
     off = sim[~np.eye(k, dtype=bool)] if k > 1 else np.ones(1)
-    im = ax.imshow(sim, cmap=_CMAP_SIMILARITY, vmin=float(off.min()), vmax=1.0)
+    im = ax.imshow(sim, cmap=palette.sequential_map(), vmin=float(off.min()), vmax=1.0)
     centres = [l * heads + (heads - 1) / 2 for l in range(redundancy.num_layers)]
     names = [fmt.layer_name(l) for l in range(redundancy.num_layers)]
     ax.set_xticks(centres, names)
@@ -152,8 +158,18 @@ def pruning_figure(pruning: PruningResult) -> Figure:
     """Accuracy against the fraction of heads switched off, one line per order."""
     fig = _figure(6.8, 4.6)
     ax = fig.add_axes((0.11, 0.24, 0.85, 0.66))
-    for curve in pruning.curves:
-        ax.plot(curve.fractions, curve.accuracy, marker="o", ms=2.5, lw=1.4, label=curve.order_name)
+    for i, curve in enumerate(pruning.curves):
+        dash, marker, grey = ORDER_STYLES[i % len(ORDER_STYLES)]
+        ax.plot(
+            curve.fractions,
+            curve.accuracy,
+            ls=dash,
+            marker=marker,
+            ms=2.5,
+            lw=1.4,
+            color=grey,
+            label=curve.order_name,
+        )
     start = pruning.accuracy_before
     if pruning.max_drop is not None:
         ax.axhline(
@@ -170,7 +186,7 @@ def pruning_figure(pruning: PruningResult) -> Figure:
             [pruning.accuracy_after],
             marker="*",
             ms=12,
-            color="crimson",
+            color=palette.ACCENT,
             ls="none",
             label=f"exported: {fmt.count(len(pruning.removed), 'head')} ({pruning.mask_order})",
         )

@@ -3,8 +3,9 @@
 Every figure carries a caption (model, sentence, view, layer/head, metric,
 colour scale) and is written atomically as PNG, SVG or PDF, with the numbers
 behind it as a CSV file beside it (same name, ``.csv``). Weights use the same
-perceptually uniform, colour-blind-safe sequential map as the window
-(``cividis``); the selection is marked with the same vermilion accent.
+perceptually uniform, colour-blind-safe sequential map as the window and the
+selection is marked with the same vermilion accent, both from
+:mod:`inspector.palette`.
 
 The figures are built on ``matplotlib.figure.Figure`` objects directly (never
 pyplot), so they can be rendered off the GUI thread without touching global
@@ -19,17 +20,18 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-from matplotlib import colormaps, rc_context
+from matplotlib import rc_context
 from matplotlib.figure import Figure
 from matplotlib.patches import PathPatch, Rectangle
 from matplotlib.path import Path as MplPath
 
 from inspector import formatting as fmt
+from inspector import palette
 from inspector.errors import HeadcountError
 from inspector.figures.files import atomic_write, save_csv
 
-CMAP_NAME = "cividis"
-ACCENT = "#c85400"
+CMAP_NAME = palette.SEQUENTIAL
+ACCENT = palette.ACCENT
 FORMATS = {".png": "png", ".svg": "svg", ".pdf": "pdf"}
 PNG_DPI = 220
 CAUTION = (
@@ -99,7 +101,7 @@ def _tick_step(count: int, limit: int) -> int:
 
 
 def _cmap():
-    return colormaps[CMAP_NAME].with_extremes(bad=(1, 1, 1, 0))
+    return palette.sequential_map()
 
 
 # -- drawing into axes -----------------------------------------------------------------------------

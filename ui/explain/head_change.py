@@ -1,8 +1,10 @@
 """The per-head change map of a what-if: layers down, heads across, edited minus original.
 
-Each cell is one head; its shade grows with the size of the change (ink where
-the metric rose, vermilion where it fell, see :mod:`ui.widgets.signed`) and the signed
-change is printed in it when it fits. The heads that changed most are framed.
+Each cell is one head; its shade grows with the size of the change (green where
+the metric rose, purple where it fell: the two ends of the diverging map, see
+:mod:`ui.widgets.signed`) and the signed change is printed in it when it fits. The
+heads that changed most are framed in the text colour; the accent frames the
+hovered cell only.
 """
 
 from __future__ import annotations

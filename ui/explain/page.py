@@ -48,7 +48,6 @@ from ui.explain.state import (
     compute_explanation,
 )
 from ui.sentence.bar import NO_EXPECTATION
-from ui.widgets.colormap import accent
 from ui.widgets.export import ExportController, ExportJob, slug
 from ui.widgets.legend import ColourKey
 from ui.widgets.panel import buddy_label, column, control_grid
@@ -401,7 +400,7 @@ class ExplainPage(QWidget):
     def changeEvent(self, event: QEvent) -> None:
         if event.type() == QEvent.Type.PaletteChange:
             if self.state.ready:
-                self.refresh()  # the accent marks follow the palette
+                self.refresh()  # the signed colours follow the palette
         super().changeEvent(event)
 
     def showEvent(self, event: object) -> None:
@@ -440,7 +439,7 @@ class ExplainPage(QWidget):
                 panel.show_note(NO_EDIT_NOTE)
                 continue
             panel.set_subtitle(f"\u201c{s.text}\u201d")
-            panel.prediction.setText(st.prediction_text(side, accent(self.palette()).name()))
+            panel.prediction.setText(st.prediction_text(side))
             panel.show_words(st.words(side), st.columns(side), st.changed_words(side))
             panel.show_reading(st.hints(side), label)
             panel.captions.setText(f"{st.ig_caption(side)}.\n{st.occlusion_caption(s)}.")

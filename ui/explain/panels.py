@@ -30,7 +30,7 @@ from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
 from ui.explain.head_change import HeadChangeMap
 from ui.explain.state import AgreementTable, MethodColumn, disagrees
 from ui.explain.word_bars import EvidenceTable
-from ui.widgets.colormap import accent, dim_text
+from ui.widgets.colormap import dim_text
 from ui.widgets.panel import Panel, column
 from ui.widgets.signed import SignKey
 
@@ -108,13 +108,9 @@ class SentenceSide(ExplainPanel):
         self.scroll.setMaximumHeight(self.table.heightForWidth(self.table.width()) + 2)
 
     def show_reading(self, hints: list[str], label: str) -> None:
-        """The hints as a short list, led by a warning (accent and sign) when anything disagrees."""
+        """The hints as a short list, led by a warning sign when anything disagrees."""
         flagged = any(not hint.startswith("No disagreement") for hint in hints)
-        lead = (
-            f"<span style='color:{accent(self.palette()).name()}'>\u26a0 <b>Check before acting</b></span>"
-            if flagged
-            else "\u2713 <b>Agrees</b>"
-        )
+        lead = "\u26a0 <b>Check before acting</b>" if flagged else "\u2713 <b>Agrees</b>"
         items = "<br>".join(f"\u2022 {html.escape(hint)}" for hint in hints)
         self.reading.setText(f"{lead} (evidence for {html.escape(label)}):<br>{items}")
 
@@ -153,7 +149,7 @@ class AgreementPanel(ExplainPanel):
         self.set_subtitle("")
 
     def show_table(self, table: AgreementTable, label: str, words: int) -> None:
-        """Rows: (sentence, label); columns: methods. The chosen label's rows in bold; low rho with accent and ✕."""
+        """Rows: (sentence, label); columns: methods. The chosen label's rows in bold; low rho in bold with ✕."""
         grid = self.table
         grid.clear()
         grid.setRowCount(len(table.headers))
@@ -162,7 +158,6 @@ class AgreementPanel(ExplainPanel):
         grid.setHorizontalHeaderLabels(table.titles)
         for c, method in enumerate(table.methods):
             grid.horizontalHeaderItem(c).setToolTip(METHOD_LABELS[method])
-        colour = accent(self.palette())
         bold = QFont(self.font())
         bold.setBold(True)
         for r, (_side, name) in enumerate(table.rows):
@@ -173,7 +168,7 @@ class AgreementPanel(ExplainPanel):
                 item = QTableWidgetItem(fmt.correlation(value) + (" \u2715" if low else ""))
                 item.setTextAlignment(Qt.AlignmentFlag.AlignCenter)
                 if low:
-                    item.setForeground(colour)
+                    item.setFont(bold)
                     item.setToolTip(f"below {AGREEMENT_THRESHOLD}: ranks the words unlike occlusion")
                 elif value is None:
                     item.setToolTip("undefined: too few words, or a constant ranking")

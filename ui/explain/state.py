@@ -329,11 +329,9 @@ class ExplainState:
         )
         return f"Occlusion: drop of the label's probability when each word is {how}"
 
-    def prediction_text(self, side: str, mark: str = "") -> str:
+    def prediction_text(self, side: str) -> str:
         """Two lines of rich text: the prediction, its probability and the misfire mark; then the runners-up
         (original) or the probability shifts (edited).
-
-        ``mark`` is a colour name for the misfire mark ('' for none).
         """
         s = self.sentence(side)
         if s is None:
@@ -342,7 +340,7 @@ class ExplainState:
         line = f"<b>{html.escape(p.label)}</b> {fmt.percent(p.probabilities[p.label])}"
         if s.expected is not None and s.expected != p.label:
             share = fmt.percent(p.probabilities[s.expected])
-            misfire = f"<span style='color:{mark}'>\u2715 misfire</span>" if mark else "\u2715 misfire"
+            misfire = "<b>\u2715 misfire</b>"
             line += f" \u00b7 expected {html.escape(s.expected)} {share} \u00b7 {misfire}"
         elif s.expected is not None:
             line += " \u00b7 \u2713 as expected"

@@ -184,7 +184,9 @@ class EvidenceTable(HoverView):
             rect = QRectF(MARGIN, top + row * row_h, width - 8, row_h)
             edited = row in self.changed
             if edited:
-                p.fillRect(QRectF(MARGIN, rect.top() + 3, 3, row_h - 6), accent(pal))
+                p.fillRect(
+                    QRectF(MARGIN, rect.top() + 3, 3, row_h - 6), pal.color(QPalette.ColorRole.WindowText)
+                )
             p.setFont(bold if edited else self.font())
             p.setPen(pal.color(QPalette.ColorRole.WindowText))
             text = QFontMetrics(p.font()).elidedText(
@@ -206,7 +208,7 @@ class EvidenceTable(HoverView):
         title = QFontMetrics(bold).elidedText(col.title, Qt.TextElideMode.ElideRight, int(box.width()))
         p.drawText(box, Qt.AlignmentFlag.AlignCenter, title)
         p.setFont(self.font())
-        p.setPen(accent(pal) if disagrees(col.rho) else dim_text(pal, 0.75))
+        p.setPen(pal.color(QPalette.ColorRole.WindowText) if disagrees(col.rho) else dim_text(pal, 0.75))
         note = fm.elidedText(self.header_note(col), Qt.TextElideMode.ElideRight, int(box.width()))
         p.drawText(box.translated(0, line + 2), Qt.AlignmentFlag.AlignCenter, note)
 

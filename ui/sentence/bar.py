@@ -18,7 +18,7 @@ from PySide6.QtWidgets import (
 
 from inspector import formatting as fmt
 from inspector.measures.analysis import Prediction
-from ui.widgets.colormap import accent, dim_text
+from ui.widgets.colormap import dim_text
 from ui.widgets.legend import meter_colours
 
 DEBOUNCE_MS = 200
@@ -87,7 +87,10 @@ class TopBars(QWidget):
             )
             bar = QRectF(label_w, y + 5, bar_w, self.ROW - 10)
             p.fillRect(bar, track)
-            p.fillRect(QRectF(bar.x(), bar.y(), bar_w * prob, bar.height()), accent(pal) if is_top else fill)
+            p.fillRect(
+                QRectF(bar.x(), bar.y(), bar_w * prob, bar.height()),
+                pal.color(QPalette.ColorRole.WindowText) if is_top else fill,
+            )
             if is_expected:
                 p.setPen(QPen(pal.color(QPalette.ColorRole.WindowText), 1, Qt.PenStyle.DashLine))
                 p.drawRect(bar.adjusted(-1, -2, 1, 2))
@@ -237,11 +240,9 @@ class SentenceBar(QWidget):
         self.bars.set_items(
             prediction.top(TOP_K), self.expected_label(), full.probabilities if full and mask_text else None
         )
-        pal = self.palette()
         if misfire:
-            colour = accent(pal).name()
             self.verdict.setText(
-                f"<span style='color:{colour}; font-weight:600'>\u2715 Misfire</span> "
+                "<span style='font-weight:600'>\u2715 Misfire</span> "
                 f"\u2014 expected <b>{self.expected_label()}</b>"
             )
             self.verdict.setToolTip("The prediction differs from the expected label.")

@@ -1,15 +1,17 @@
-"""Colours of the window: one weight colour map, one accent, the system palette.
+"""Colours of the window: the one visual language of :mod:`inspector.palette`, and the system palette.
 
 Weights
-    Every attention weight, rollout or relevance value in the window is drawn
-    with one perceptually uniform sequential map, matplotlib's ``cividis``
-    (Nunez, Anderton & Renslow 2018, "Optimizing colormaps with consideration
-    for color vision deficiency"). It runs from dark blue (low) to yellow
-    (high), keeps lightness rising monotonically, and reads the same for the
-    common colour-vision deficiencies. The map is sampled **once**, at import,
-    into a 256 x 4 ``uint8`` lookup table (:data:`LUT`); views turn numbers
-    into pixels with one vectorised table lookup (:func:`to_rgba`), never with
-    matplotlib at draw time.
+    Every non-negative quantity in the window (attention weight, rollout or
+    relevance, importance, similarity, a share of a confusion row) is drawn with
+    the project's one sequential map, :data:`inspector.palette.SEQUENTIAL`
+    (cividis: Nunez, Anderton & Renslow 2018, "Optimizing colormaps with
+    consideration for color vision deficiency"). It runs from dark blue (low) to
+    yellow (high), keeps lightness rising monotonically, and reads the same for
+    the common colour-vision deficiencies. The map is sampled **once**, at
+    import, into a 256 x 4 ``uint8`` lookup table (:data:`LUT`) by the core;
+    views turn numbers into pixels with one vectorised table lookup
+    (:func:`to_rgba`), never with matplotlib at draw time. Signed quantities use
+    the diverging map of the same module (see :mod:`ui.widgets.signed`).
 
 Selection
     One accent colour marks what is selected (head, query token, hovered
@@ -25,20 +27,19 @@ Light or dark
 from __future__ import annotations
 
 import numpy as np
-from matplotlib import colormaps
 from PySide6.QtGui import QColor, QImage, QPalette
 
-COLORMAP_NAME = "cividis"
-"""The one sequential map for weights (also used by the exported figures)."""
+from inspector import palette
 
-LUT: np.ndarray = np.ascontiguousarray(
-    (colormaps[COLORMAP_NAME](np.linspace(0.0, 1.0, 256)) * 255.0 + 0.5).astype(np.uint8)
-)
+COLORMAP_NAME = palette.SEQUENTIAL
+"""The one sequential map for weights (the exported figures use the same, from :mod:`inspector.palette`)."""
+
+LUT: np.ndarray = palette.table(palette.SEQUENTIAL)
 """[256, 4] RGBA lookup table sampled once from :data:`COLORMAP_NAME`."""
 
-ACCENT_LIGHT = "#c85400"
+ACCENT_LIGHT = palette.ACCENT
 """Vermilion accent on a light palette (Okabe-Ito vermilion, darkened for contrast on white)."""
-ACCENT_DARK = "#ff8a3d"
+ACCENT_DARK = palette.ACCENT_DARK
 """The same hue, lightened for a dark palette."""
 
 

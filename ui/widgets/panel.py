@@ -15,7 +15,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from ui.widgets.colormap import accent, dim_text
+from ui.widgets.colormap import dim_text
 
 
 def column(
@@ -135,7 +135,7 @@ class MessageBar(QFrame):
         self.hide()
 
     def show_message(self, text: str) -> None:
-        colour = accent(self.palette()).name()
+        colour = self.palette().color(QPalette.ColorRole.WindowText).name()
         self.setStyleSheet(f"#messageBar {{ border: 1px solid {colour}; border-left: 5px solid {colour}; }}")
         self.label.setText(text)
         self.show()

@@ -1,20 +1,20 @@
 """The window's treatment of signed values (evidence for or against a label, a metric that rose or fell).
 
 Non-negative relevances (attention rollout and its variants) keep the one
-weight colour map of :mod:`ui.widgets.colormap`. Values that can be negative are never
-put on that map: they are drawn as bars on either side of a zero line, so the
-sign is read from the *side* first and from the colour second:
+sequential map of :mod:`ui.widgets.colormap`. Values that can be negative are
+never put on that map: they are drawn as bars on either side of a zero line, so
+the sign is read from the *side* first and from the colour second, in the two
+ends of the project's one diverging map (:data:`inspector.palette.DIVERGING`):
 
-* positive (pushes toward the label; the metric rose): to the right, in the
-  palette's own ink (the neutral grey of the meters);
-* negative (pushes away from the label; the metric fell): to the left, in the
-  vermilion accent.
+* positive (pushes toward the label; the metric rose): to the right, green;
+* negative (pushes away from the label; the metric fell): to the left, purple.
 
-Ink against vermilion differs in lightness as well as hue, and the side carries
-the sign on its own, so the reading survives every common colour-vision
-deficiency and greyscale printing. Cells of a grid (the per-head change map)
-use the same two colours, with the opacity growing with the magnitude and the
-signed number printed in the cell.
+The side carries the sign on its own and the number printed beside the bar
+carries it again, so the reading survives every common colour-vision deficiency
+and greyscale printing. Cells of a grid (the per-head change map) use the same
+two colours, with the opacity growing with the magnitude and the signed number
+printed in the cell. The vermilion accent is never used for a sign: it marks the
+selection only.
 """
 
 from __future__ import annotations
@@ -22,13 +22,14 @@ from __future__ import annotations
 from PySide6.QtCore import QRect, QRectF
 from PySide6.QtGui import QColor, QPainter, QPalette
 
-from ui.widgets.colormap import accent, dim_text
-from ui.widgets.legend import _Key, meter_colours
+from inspector import palette as visual
+from ui.widgets.colormap import dim_text, is_dark
+from ui.widgets.legend import _Key
 
 
 def signed_colour(palette: QPalette, value: float) -> QColor:
-    """Ink for a positive value, the accent for a negative one (zero counts as positive)."""
-    return QColor(accent(palette)) if value < 0 else QColor(meter_colours(palette)[1])
+    """The diverging map's green for a positive value, its purple for a negative one (zero counts as positive)."""
+    return QColor(visual.signed_hex(value, dark=is_dark(palette)))
 
 
 def blend(base: QColor, over: QColor, amount: float) -> QColor:
