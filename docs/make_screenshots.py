@@ -10,7 +10,7 @@ Run:  .venv/bin/python docs/make_screenshots.py [--sizes-only]
    thread. Each is one ``headcount open MODEL --text ... --screenshot FILE --size
    1366x768`` command.
 2. The sample model: ``window.png`` and ``corpus.png`` with the same command, then
-   panel close-ups, the explain page with a what-if edit, the corpus page's heads
+   panel close-ups, the explain page with a rewording, the corpus page's heads
    tab, a dark palette and a bad folder, driven in one window.
 
 Uses the bundled sample model and a sentence from the evaluation set that it
@@ -147,11 +147,11 @@ def misrouted_fallback(model_dir: Path) -> tuple[str, str]:
     return FALLBACK_SENTENCES[0]
 
 
-def explain_with_what_if(app, window, text: str, expected: str) -> None:
+def explain_with_rewording(app, window, text: str, expected: str) -> None:
     """Open the misfire on the Explain page, then compare it with a copy that lacks its most decisive word.
 
     The decisive word is the one whose removal lowers the predicted label's
-    probability most (occlusion), so the what-if shows what that word did.
+    probability most (occlusion), so the rewording shows what that word did.
     """
     import numpy as np
 
@@ -333,7 +333,7 @@ def main() -> int:
     page.special_action.setChecked(False)
     page.source_box.setCurrentIndex(0)
     page.links_box.setCurrentIndex(0)
-    explain_with_what_if(app, window, text, expected)
+    explain_with_rewording(app, window, text, expected)
     window.grab().save(str(DOCS / "explain.png"))
     print("wrote docs/explain.png")
     corpus_run(app, window)

@@ -1,7 +1,7 @@
 """What a person reads follows the one formatter's rules: window, command line and figures.
 
 The window's three pages are rendered offscreen on the bundled sample model (a
-sentence, its explanation with a what-if edit, and a corpus run on a slice of
+sentence, its explanation with a rewording edit, and a corpus run on a slice of
 the sample evaluation set with one planted bad row); every visible string is
 collected (labels, buttons, spin boxes, table cells and headers, tooltips,
 status-bar messages, the strings the custom views paint and their hover
@@ -272,7 +272,7 @@ def test_window_pages_show_one_head_form_percent_scores_and_agreeing_counts(
         columns += bad
     page.grid.hovered.emit(2, 3)  # a head's hover read-out also goes to the status bar
 
-    # the explain page: the misfire with a what-if edit
+    # the explain page: the misfire with a rewording edit
     explain = explain_and_wait(qtbot, win, TEXT, misfire, EDITED)
     explained, bad = visible_text(explain)
     columns += bad
@@ -398,7 +398,7 @@ def test_exported_figures_follow_the_rules(sample, slice_csv, misfire):
     from inspector.corpus.dataset import read_labelled
     from inspector.corpus.run import run_corpus
     from inspector.corpus.settings import CorpusSettings
-    from inspector.explanation.whatif import compare_sentences
+    from inspector.explanation.rewording import compare_rewording
     from inspector.figures import corpus as corpus_figures
     from inspector.figures import explanation as explanation_figures
     from inspector.figures import sentence as sentence_figures
@@ -406,7 +406,7 @@ def test_exported_figures_follow_the_rules(sample, slice_csv, misfire):
 
     data = read_labelled(slice_csv, known_labels=sample.labels)
     report = run_corpus(sample, data, CorpusSettings(batch_size=16, prune_every=6))
-    cmp = compare_sentences(sample, TEXT, EDITED, expected=misfire, steps=16)
+    cmp = compare_rewording(sample, TEXT, EDITED, expected=misfire, steps=16)
     a = analyze_sentence(sample, TEXT)
     cap = sentence_figures.Caption(a.model_name, a.text, "Head mosaic", "L2H3", "Entropy (nats)", "0 to 1")
     figures = {

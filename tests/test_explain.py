@@ -1,4 +1,4 @@
-"""Explain one misfire on real (small) checkpoints: IG completeness, attention gradients, occlusion, what-if, CLI."""
+"""Explain one misfire on real (small) checkpoints: IG completeness, attention gradients, occlusion, rewording, CLI."""
 
 from __future__ import annotations
 
@@ -21,7 +21,7 @@ from inspector.errors import HeadcountError
 from inspector.explanation.explain import explain_sentence
 from inspector.explanation.gradients import attention_gradients, grad_weighted_rollout, integrated_gradients
 from inspector.explanation.occlusion import occlude_words
-from inspector.explanation.whatif import compare_sentences
+from inspector.explanation.rewording import compare_rewording
 from inspector.measures.analysis import softmax
 from inspector.measures.metrics import head_metrics
 from inspector.paths import SAMPLE_EVAL, SAMPLE_MODEL
@@ -263,7 +263,7 @@ def test_occlusion_equals_the_model_on_the_shortened_sentence(classifier):
 
 
 # ---------------------------------------------------------------------------
-# The explanation and the what-if comparison
+# The explanation and the rewording comparison
 # ---------------------------------------------------------------------------
 
 
@@ -304,11 +304,11 @@ def test_explain_refuses_what_it_cannot_explain(classifier, minilm):
         explain_sentence(classifier, "   ")
 
 
-def test_what_if_comparison(classifier):
+def test_rewording_comparison(classifier):
     """Reference: inspector.measures.metrics.head_metrics on capture.run's attention of each sentence (computed apart),
     and difflib for the word alignment."""
     original, edited = "please cancel my crossing", "please change my crossing tomorrow"
-    cmp = compare_sentences(classifier, original, edited, expected=LABELS[1], metric="special_share", top=4)
+    cmp = compare_rewording(classifier, original, edited, expected=LABELS[1], metric="special_share", top=4)
     cap = capture.run(classifier, [original, edited])
     before = head_metrics(cap.sentence(0), cap.batch.special[0]).special_share
     after = head_metrics(cap.sentence(1), cap.batch.special[1]).special_share
@@ -375,7 +375,7 @@ def test_cli_text_compare_and_figures(classifier_dir, capsys, tmp_path):
     base = ["explain", str(classifier_dir), "--text", "please cancel my crossing", "--steps", "8"]
     assert main([*base, "--compare", "please change my crossing", "--figure", str(tmp_path / "f.png")]) == 0
     out = capsys.readouterr().out
-    assert "== what-if ==" in out and "Jain & Wallace 2019" in out and "completeness error" in out
+    assert "== rewording ==" in out and "Jain & Wallace 2019" in out and "completeness error" in out
     with Image.open(tmp_path / "f.png") as img:
         assert img.size[0] > 500 and img.size[1] > 300
     assert main([*base, "--figure", str(tmp_path / "f.pdf")]) == 0

@@ -23,7 +23,7 @@ from inspector.explanation.faithfulness import (
 )
 from inspector.explanation.gradients import grad_weighted_rollout, integrate_path, quadrature
 from inspector.explanation.occlusion import occluded_rows
-from inspector.explanation.whatif import heads_that_changed, word_changes
+from inspector.explanation.rewording import heads_that_changed, word_changes
 
 
 def test_grad_weighted_rollout_hand_computed():

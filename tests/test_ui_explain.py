@@ -1,8 +1,8 @@
-"""The Explain page, offscreen: one click from a sentence, the numbers it holds, the what-if, export, bare encoders.
+"""The Explain page, offscreen: one click from a sentence, the numbers it holds, the rewording, export, bare encoders.
 
 Every number the page paints is compared with the core's own computation on the
 same checkpoint and input (``inspector.explanation.explain.explain_sentence`` and
-``inspector.explanation.whatif.compare_sentences``), which tests/test_explain.py checks
+``inspector.explanation.rewording.compare_rewording``), which tests/test_explain.py checks
 against the transformers library, SciPy and closed forms; and with the
 ``headcount explain --json`` command line.
 """
@@ -27,7 +27,7 @@ from PySide6.QtGui import QImage, QPainter, QPalette  # noqa: E402
 from inspector.checkpoint.loader import LoadedModel, load_checkpoint  # noqa: E402
 from inspector.cli.main import main as cli_main  # noqa: E402
 from inspector.explanation.explain import explain_sentence  # noqa: E402
-from inspector.explanation.whatif import compare_sentences  # noqa: E402
+from inspector.explanation.rewording import compare_rewording  # noqa: E402
 from inspector.measures.analysis import analyze_sentence  # noqa: E402
 from inspector.paths import SAMPLE_EVAL, SAMPLE_MODEL  # noqa: E402
 from tests.families import LABELS, build_checkpoint  # noqa: E402
@@ -35,7 +35,14 @@ from tests.families import LABELS, build_checkpoint  # noqa: E402
 WAIT_MS = 60_000
 TEXT = "I need to cancel my crossing to Gullholm tomorrow"
 EDITED = "I need to move my crossing to Gullholm tomorrow"
-METHODS = ("rollout", "value_weighted", "grad_rollout", "integrated_gradients", "occlusion")
+METHODS = (
+    "rollout",
+    "value_weighted",
+    "grad_rollout",
+    "integrated_gradients",
+    "occlusion",
+    "occlusion_log_odds",
+)
 TOL = dict(rtol=1e-5, atol=1e-7)
 """The window runs the job with one torch thread; reductions may differ in the last bits from the test's threads."""
 
@@ -107,8 +114,9 @@ def explain_and_wait(qtbot, win, text: str, expected: str | None, edited: str = 
 def check_lanes(table, core, label: str) -> None:
     """The evidence table of one sentence paints exactly the core's word relevances for ``label``."""
     assert table.labels == core.words
-    expected = core.evidence(label).relevances(core)
-    for method in METHODS:
+    contrast = core.contrast is not None and label == core.contrast.label
+    expected = (core.contrast if contrast else core.evidence(label)).relevances(core)
+    for method in METHODS[:5] if contrast else METHODS:
         np.testing.assert_allclose(table.values(method), expected[method], **TOL, err_msg=method)
 
 
@@ -125,14 +133,24 @@ def test_open_explanation_holds_the_core_numbers_and_the_cli_agrees(
     assert window.pages.currentWidget() is page
     core = explain_sentence(tiny, TEXT, expected=misfire)
     st = page.state
-    assert set(st.roles()) == {"predicted", "expected"}
-    assert st.roles() == {"predicted": core.prediction.label, "expected": misfire}
+    assert st.roles() == {
+        "predicted": core.prediction.label,
+        "expected": misfire,
+        "contrast": f"{core.prediction.label} vs {misfire}",
+    }
     assert page.role_buttons["predicted"].isChecked() and not page.role_buttons["edited"].isVisible()
     for role, label in st.roles().items():
         page.role_buttons[role].click()
         assert st.label() == label
-        check_lanes(page.original.table, core, label)
-        ev = core.evidence(label)
+        if role == "contrast":
+            ev = core.contrast
+            expected_lanes = ev.relevances(core)
+            for method in METHODS[:5]:
+                np.testing.assert_allclose(page.original.table.values(method), expected_lanes[method], **TOL)
+            assert "minus logit of" in page.original.captions.text()
+        else:
+            check_lanes(page.original.table, core, label)
+            ev = core.evidence(label)
         ig = ev.integrated_gradients
         caption = page.original.captions.text()
         assert "64 steps" in caption and "\u2018pad\u2019" in caption and "removed" in caption
@@ -142,8 +160,8 @@ def test_open_explanation_holds_the_core_numbers_and_the_cli_agrees(
             assert hint[1:] in html.unescape(page.original.reading.text())
     # the agreement table: one row per explained label, one column per method
     grid = page.agreement
-    assert grid.rowCount() == len(core.labels) and grid.columnCount() == 4
-    for r, ev in enumerate(core.labels):
+    assert grid.rowCount() == len(core.labels) + 1 and grid.columnCount() == 4
+    for r, ev in enumerate([*core.labels, core.contrast]):
         assert ev.label in grid.verticalHeaderItem(r).text()
         for c, method in enumerate(("rollout", "value_weighted", "grad_rollout", "integrated_gradients")):
             rho = ev.faithfulness[method]
@@ -172,16 +190,16 @@ def test_open_explanation_holds_the_core_numbers_and_the_cli_agrees(
             assert cli["faithfulness"][method] == pytest.approx(rho, abs=1e-6)
 
 
-def test_what_if_matches_compare_sentences(qtbot, window, tiny_dir, tiny, misfire):
-    """The what-if shows both sentences' lanes and the per-head change of compare_sentences, for any metric.
+def test_rewording_matches_compare_rewording(qtbot, window, tiny_dir, tiny, misfire):
+    """The rewording shows both sentences' lanes and the per-head change of compare_rewording, for any metric.
 
-    Reference: inspector.explanation.whatif.compare_sentences on the same inputs (metrics from inspector.measures.metrics,
+    Reference: inspector.explanation.rewording.compare_rewording on the same inputs (metrics from inspector.measures.metrics,
     checked against SciPy's entropy in tests/test_metrics.py); difflib's word alignment.
     """
     page = explain_and_wait(qtbot, window, TEXT, misfire, EDITED)
     for metric in ("entropy", "distance"):
         page.metric_box.setCurrentIndex(page.metric_box.findData(metric))
-        cmp = compare_sentences(tiny, TEXT, EDITED, expected=misfire, metric=metric)
+        cmp = compare_rewording(tiny, TEXT, EDITED, expected=misfire, metric=metric)
         np.testing.assert_allclose(page.head_map.difference, cmp.difference, **TOL)
         shown = page.state.top_heads()
         assert len(shown) == len(cmp.top_heads) == 5
@@ -211,7 +229,7 @@ def test_export_writes_figure_and_csv_with_the_page_numbers(
     """Ctrl+E on the Explain page writes a valid PNG, SVG and PDF and a CSV of every word's relevances.
 
     Reference: PNG/SVG/PDF signatures (PNG spec, W3C SVG, ISO 32000 header) parsed by Pillow and
-    ElementTree; the CSV's numbers against compare_sentences on the same inputs.
+    ElementTree; the CSV's numbers against compare_rewording on the same inputs.
     """
     from ui.explain.page import explanation_export
     from ui.widgets import export as export_actions
@@ -232,10 +250,13 @@ def test_export_writes_figure_and_csv_with_the_page_numbers(
     assert target.with_suffix(".pdf").read_bytes().startswith(b"%PDF")
     with target.with_suffix(".csv").open(newline="", encoding="utf-8") as fh:
         rows = list(csv.DictReader(fh))
-    cmp = compare_sentences(tiny, TEXT, EDITED, expected=misfire)
+    cmp = compare_rewording(tiny, TEXT, EDITED, expected=misfire)
     for side, core in (("original", cmp.original), ("edited", cmp.edited)):
-        mine = [r for r in rows if r["sentence"] == side]
+        mine = [r for r in rows if r["side"] == side]
         assert [r["word"] for r in mine] == core.words
+        assert {(r["text"], r["predicted"], r["expected"]) for r in mine} == {
+            (core.text, core.prediction.label, misfire)
+        }
         for label in cmp.labels:
             table = core.evidence(label).relevances(core)
             for method in METHODS:

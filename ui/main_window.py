@@ -77,8 +77,8 @@ SHORTCUTS_HELP = """<table cellspacing=4>
 <tr><td nowrap><b>Ctrl+Shift+W / H</b></td><td>Words instead of pieces / hide special tokens</td></tr>
 <tr><td nowrap><b>Ctrl+E</b></td><td>Export the view that has the keyboard focus</td></tr>
 <tr><td nowrap><b>Ctrl+Shift+E</b></td><td>Export the one-page figure sheet (PDF)</td></tr>
-<tr><td nowrap><b>Ctrl+Shift+X</b></td><td>Explain the sentence: what pushed it toward each label, and what-if edits</td></tr>
-<tr><td nowrap><b>Ctrl+Return</b></td><td>On the Explain page: explain again (and compare the edited copy)</td></tr>
+<tr><td nowrap><b>Ctrl+Shift+X</b></td><td>Explain the sentence: what pushed it toward each label, and rewordings</td></tr>
+<tr><td nowrap><b>Ctrl+Return</b></td><td>On the Explain page: explain again (and compare the rewording)</td></tr>
 <tr><td nowrap><b>Ctrl+Shift+K</b></td><td>Corpus page: a whole evaluation set (Enter on a misfire: sentence view; Ctrl+Enter: explain)</td></tr>
 <tr><td nowrap><b>Ctrl+Shift+R</b></td><td>On the Corpus page: export the report folder</td></tr>
 </table>"""

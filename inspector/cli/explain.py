@@ -13,11 +13,18 @@ import numpy as np
 from inspector import formatting as fmt
 from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model, mask_record
 from inspector.errors import HeadcountError
-from inspector.explanation.explain import CAUTION, RULE_NAMES, LabelEvidence, SentenceExplanation
+from inspector.explanation.explain import (
+    CAUTION,
+    RULE_NAMES,
+    ContrastEvidence,
+    IntegratedGradientsResult,
+    LabelEvidence,
+    SentenceExplanation,
+)
 from inspector.explanation.faithfulness import METHOD_LABELS
 from inspector.explanation.gradients import BASELINES, RULES
 from inspector.explanation.occlusion import OCCLUSION_MODES
-from inspector.explanation.whatif import WhatIfComparison
+from inspector.explanation.rewording import RewordingComparison
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
 
 COLUMNS = (
@@ -25,10 +32,11 @@ COLUMNS = (
     ("value_weighted", "value-wtd"),
     ("grad_rollout", "grad-roll"),
     ("integrated_gradients", "int-grad"),
-    ("occlusion", "occlusion"),
+    ("occlusion", "occl-p"),
+    ("occlusion_log_odds", "occl-lodds"),
 )
 """Relevance columns of the text table: (JSON name, header)."""
-SIGNED_COLUMNS = frozenset({"integrated_gradients", "occlusion"})
+SIGNED_COLUMNS = frozenset({"integrated_gradients", "occlusion", "occlusion_log_odds"})
 """Columns that can be negative: printed with their sign."""
 
 
@@ -41,28 +49,46 @@ def _floats(values: np.ndarray) -> list[float]:
 # ---------------------------------------------------------------------------
 
 
+def ig_json(ig: IntegratedGradientsResult) -> dict:
+    return {
+        "attributions": _floats(ig.attributions),
+        "baseline": ig.baseline,
+        "steps": ig.steps,
+        "rule": ig.rule,
+        "logit_input": ig.logit_input,
+        "logit_baseline": ig.logit_baseline,
+        "completeness_error": ig.completeness_error,
+        "completeness_relative": ig.completeness_relative if np.isfinite(ig.completeness_relative) else None,
+    }
+
+
 def label_json(ev: LabelEvidence) -> dict:
-    ig = ev.integrated_gradients
     return {
         "roles": list(ev.roles),
         "probability": ev.probability,
         "logit": ev.logit,
         "grad_rollout": _floats(ev.grad_rollout),
-        "integrated_gradients": {
-            "attributions": _floats(ig.attributions),
-            "baseline": ig.baseline,
-            "steps": ig.steps,
-            "rule": ig.rule,
-            "logit_input": ig.logit_input,
-            "logit_baseline": ig.logit_baseline,
-            "completeness_error": ig.completeness_error,
-            "completeness_relative": ig.completeness_relative
-            if np.isfinite(ig.completeness_relative)
-            else None,
-        },
+        "integrated_gradients": ig_json(ev.integrated_gradients),
         "occlusion": _floats(ev.occlusion),
+        "occlusion_log_odds": _floats(ev.occlusion_log_odds),
         "faithfulness": dict(ev.faithfulness),
         "hints": list(ev.hints),
+    }
+
+
+def contrast_json(c: ContrastEvidence | None) -> dict | None:
+    """The ``contrast`` member: every method on ``logit(predicted) - logit(expected)`` (null unless a misfire)."""
+    if c is None:
+        return None
+    return {
+        "predicted": c.predicted,
+        "expected": c.expected,
+        "logit_gap": c.gap,
+        "grad_rollout": _floats(c.grad_rollout),
+        "integrated_gradients": ig_json(c.integrated_gradients),
+        "occlusion": _floats(c.occlusion),
+        "faithfulness": dict(c.faithfulness),
+        "hints": list(c.hints),
     }
 
 
@@ -81,11 +107,12 @@ def explanation_json(ex: SentenceExplanation) -> dict:
         "rollout": _floats(ex.rollout),
         "value_weighted": _floats(ex.value_weighted),
         "labels": {ev.label: label_json(ev) for ev in ex.labels},
+        "contrast": contrast_json(ex.contrast),
         "caution": CAUTION,
     }
 
 
-def comparison_json(cmp: WhatIfComparison) -> dict:
+def comparison_json(cmp: RewordingComparison) -> dict:
     """The ``compare`` member of the JSON document: the edited sentence and the head changes."""
     return {
         "edited": explanation_json(cmp.edited),
@@ -114,32 +141,56 @@ def _print_label(ex: SentenceExplanation, ev: LabelEvidence, out: TextIO) -> Non
         f"\n== {ev.label} ({roles}, p={fmt.percent(ev.probability)}, logit {fmt.signed(ev.logit)}) ==",
         file=out,
     )
+    _print_table(ex, ev.relevances(ex), COLUMNS, out)
+    _print_ig(ev.integrated_gradients, "logit", out)
+
+
+def _print_table(
+    ex: SentenceExplanation, table: dict[str, np.ndarray], columns: tuple[tuple[str, str], ...], out: TextIO
+) -> None:
     width = max([4, *(len(w) for w in ex.words)])
-    print(f"{'word':<{width}} " + " ".join(f"{head:>10}" for _, head in COLUMNS), file=out)
-    table = ev.relevances(ex)
-    cells = {name: fmt.column(table[name], sign=name in SIGNED_COLUMNS) for name, _ in COLUMNS}
+    print(f"{'word':<{width}} " + " ".join(f"{head:>10}" for _, head in columns), file=out)
+    cells = {name: fmt.column(table[name], sign=name in SIGNED_COLUMNS) for name, _ in columns}
     for i, word in enumerate(ex.words):
-        print(f"{word:<{width}} " + " ".join(f"{cells[name][i]:>10}" for name, _ in COLUMNS), file=out)
-    ig = ev.integrated_gradients
+        print(f"{word:<{width}} " + " ".join(f"{cells[name][i]:>10}" for name, _ in columns), file=out)
+
+
+def _print_ig(ig: IntegratedGradientsResult, what: str, out: TextIO) -> None:
     rel = ig.completeness_relative
     rel_text = f" (relative {fmt.number(rel, 2)})" if np.isfinite(rel) else ""
     print(
         f"Integrated Gradients: baseline '{ig.baseline}', {fmt.count(ig.steps, 'step')}, {RULE_NAMES[ig.rule]}; "
-        f"logit {fmt.signed(ig.logit_input)} at the input, {fmt.signed(ig.logit_baseline)} at the baseline; "
+        f"{what} {fmt.signed(ig.logit_input)} at the input, {fmt.signed(ig.logit_baseline)} at the baseline; "
         f"completeness error {fmt.number(ig.completeness_error, sign=True)}{rel_text}",
         file=out,
     )
 
 
+def _print_contrast(ex: SentenceExplanation, out: TextIO) -> None:
+    """Why the predicted label rather than the expected one: every method on the logit gap."""
+    c = ex.contrast
+    if c is None:
+        return
+    print(
+        f"\n== {c.label} (contrast: logit of {c.predicted} minus logit of {c.expected}, "
+        f"gap {fmt.signed(c.gap)}) ==",
+        file=out,
+    )
+    columns = (*COLUMNS[:4], ("occlusion", "occl-gap"))
+    _print_table(ex, c.relevances(ex), columns, out)
+    _print_ig(c.integrated_gradients, "gap", out)
+
+
 def _print_faithfulness(ex: SentenceExplanation, out: TextIO) -> None:
     """The faithfulness table: methods down, labels across, then the hints."""
     print(f"\nagreement with occlusion (Spearman rho over {fmt.count(len(ex.words), 'word')}):", file=out)
-    width = max(len(ev.label) for ev in ex.labels) + 2
-    print(f"{'method':<26}" + "".join(f"{ev.label:>{width}}" for ev in ex.labels), file=out)
+    rows = [*ex.labels, *([ex.contrast] if ex.contrast is not None else [])]
+    width = max(len(ev.label) for ev in rows) + 2
+    print(f"{'method':<26}" + "".join(f"{ev.label:>{width}}" for ev in rows), file=out)
     for method, name in METHOD_LABELS.items():
-        cells = "".join(f"{fmt.correlation(ev.faithfulness.get(method)):>{width}}" for ev in ex.labels)
+        cells = "".join(f"{fmt.correlation(ev.faithfulness.get(method)):>{width}}" for ev in rows)
         print(f"{name:<26}{cells}", file=out)
-    for ev in ex.labels:
+    for ev in rows:
         for hint in ev.hints:
             print(f"hint ({ev.label}): {hint}", file=out)
 
@@ -160,22 +211,24 @@ def print_explanation(ex: SentenceExplanation, out: TextIO) -> None:
     occ = "word removed" if ex.occlusion_mode == "remove" else f"word replaced by {ex.occlusion_replacement}"
     print(
         "columns: attention rollout and value-weighted rollout (same for every label), gradient-weighted "
-        f"rollout, Integrated Gradients (logit), occlusion (probability drop, {occ})",
+        f"rollout, Integrated Gradients (logit), occlusion ({occ}) as the drop of the probability (occl-p) "
+        "and of the log-odds log(p/(1-p)) (occl-lodds)",
         file=out,
     )
     for ev in ex.labels:
         _print_label(ex, ev, out)
+    _print_contrast(ex, out)
     _print_faithfulness(ex, out)
 
 
-def print_comparison(cmp: WhatIfComparison, out: TextIO) -> None:
-    """Human-readable what-if comparison (the edited sentence's explanation is printed separately)."""
+def print_comparison(cmp: RewordingComparison, out: TextIO) -> None:
+    """Human-readable rewording comparison (the edited sentence's explanation is printed separately)."""
     a, b = cmp.original.prediction, cmp.edited.prediction
-    print("\n== what-if ==", file=out)
+    print("\n== rewording ==", file=out)
     print(
         f"original: {cmp.original.text}\n  -> {a.label} ({fmt.percent(a.probabilities[a.label])})", file=out
     )
-    print(f"edited:   {cmp.edited.text}\n  -> {b.label} ({fmt.percent(b.probabilities[b.label])})", file=out)
+    print(f"reworded: {cmp.edited.text}\n  -> {b.label} ({fmt.percent(b.probabilities[b.label])})", file=out)
     print("prediction " + ("changed" if cmp.prediction_changed else "unchanged"), file=out)
     for label in cmp.labels:
         shift = cmp.probability_shift(label)
@@ -205,7 +258,7 @@ def print_comparison(cmp: WhatIfComparison, out: TextIO) -> None:
 
 def cmd_explain(args: argparse.Namespace) -> int:
     from inspector.explanation.explain import explain_sentence, require_classifier
-    from inspector.explanation.whatif import compare_sentences
+    from inspector.explanation.rewording import compare_rewording
 
     if not args.text or not args.text.strip():
         raise HeadcountError("--text is empty")
@@ -226,7 +279,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
     )
     comparison = None
     if args.compare is not None:
-        comparison = compare_sentences(
+        comparison = compare_rewording(
             lm, args.text, args.compare, expected=args.expected, metric=args.metric, top=args.top, **options
         )
         explanation = comparison.original
@@ -245,7 +298,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
         return 0
     print_explanation(explanation, sys.stdout)
     if comparison is not None:
-        print("\n-- edited sentence --", file=sys.stdout)
+        print("\n-- reworded sentence --", file=sys.stdout)
         print_explanation(comparison.edited, sys.stdout)
         print_comparison(comparison, sys.stdout)
     print(f"\ncaution: {CAUTION}", file=sys.stdout)
@@ -278,7 +331,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument(
         "--rule", choices=RULES, default="gauss-legendre", help="integration rule (default gauss-legendre)"
     )
-    p.add_argument("--compare", metavar="EDITED", help="an edited sentence to compare with")
+    p.add_argument(
+        "--compare",
+        metavar="REWORDING",
+        help="a rewording of the sentence (words changed, added or dropped) to explain beside it",
+    )
     p.add_argument(
         "--metric",
         choices=METRIC_NAMES,

@@ -3,7 +3,7 @@
 Gradient-weighted rollout and Integrated Gradients (``gradients``), word
 occlusion (``occlusion``), agreement between methods (``faithfulness``),
 ``explain.explain_sentence`` that runs them all, and the side-by-side comparison
-of a sentence with an edited copy (``whatif``). May import the checkpoint and
+of a sentence with an edited copy (``rewording``). May import the checkpoint and
 measures stages; never the corpus, figures or command-line stages.
 """
 

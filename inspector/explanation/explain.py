@@ -2,9 +2,13 @@
 
 :func:`explain_sentence` gathers, for each label of interest, the
 gradient-weighted attention rollout, Integrated Gradients and leave-one-word-out
-occlusion, next to the label-independent attention rollout and value-weighted
-rollout, all merged to words, plus a faithfulness read-out (Spearman rho of each
-relevance against occlusion). It returns one :class:`SentenceExplanation`.
+occlusion (as a drop of the probability and of the log-odds), next to the
+label-independent attention rollout and value-weighted rollout, all merged to
+words, plus a faithfulness read-out (Spearman rho of each relevance against
+occlusion). On a misfire it adds the contrastive evidence: the same methods on
+the gap between the predicted and the expected label's logits, which says why
+the model chose the predicted label *rather than* the expected one. It returns
+one :class:`SentenceExplanation`.
 """
 
 from __future__ import annotations
@@ -92,12 +96,55 @@ class LabelEvidence:
     integrated_gradients: IntegratedGradientsResult
     occlusion: np.ndarray
     """[words] drop of this label's probability when each word is left out."""
+    occlusion_log_odds: np.ndarray
+    """[words] drop of this label's log-odds ``log(p / (1 - p))`` when each word is left out."""
     faithfulness: dict[str, float | None]
     """Spearman rho against occlusion per method (None when undefined)."""
     hints: list[str]
 
     def relevances(self, explanation: SentenceExplanation) -> dict[str, np.ndarray]:
-        """Word-level relevance per method (stable names), occlusion last."""
+        """Word-level relevance per method (stable names), the two occlusion readings last."""
+        table = relevance_table(
+            explanation.rollout,
+            explanation.value_weighted,
+            self.grad_rollout,
+            self.integrated_gradients.attributions,
+        )
+        return {**table, "occlusion": self.occlusion, "occlusion_log_odds": self.occlusion_log_odds}
+
+
+@dataclass
+class ContrastEvidence:
+    """Why the predicted label rather than the expected one: every method on ``z_pred - z_exp``.
+
+    By the linearity of Integrated Gradients and of gradients, attributing the
+    difference of two logits along one path is the difference of their
+    attributions (Sundararajan, Taly & Yan 2017, sec. 2, "linearity"), so the
+    completeness axiom holds for the gap: the attributions sum to
+    ``gap(x) - gap(x')``.
+    """
+
+    predicted: str
+    expected: str
+    gap: float
+    """``z_pred - z_exp`` at the input: ``log(p_pred / p_exp)``."""
+    grad_rollout: np.ndarray
+    """[words] gradient-weighted rollout with the gradient of the gap (``grad_pred - grad_exp``)."""
+    integrated_gradients: IntegratedGradientsResult
+    """Integrated Gradients of the gap (its ``logit_*`` fields hold the gap at both ends)."""
+    occlusion: np.ndarray
+    """[words] drop of the gap (in logits, = of ``log(p_pred / p_exp)``) when each word is left out."""
+    faithfulness: dict[str, float | None]
+    """Spearman rho of each relevance against the gap's occlusion."""
+    hints: list[str]
+
+    @property
+    def label(self) -> str:
+        """How the contrast is named on screen and in files: ``predicted vs expected``."""
+        return f"{self.predicted} vs {self.expected}"
+
+    def relevances(self, explanation: SentenceExplanation) -> dict[str, np.ndarray]:
+        """Word-level relevance per method, under the same stable names as :meth:`LabelEvidence.relevances`."""
         table = relevance_table(
             explanation.rollout,
             explanation.value_weighted,
@@ -132,6 +179,8 @@ class SentenceExplanation:
     labels: list[LabelEvidence]
     occlusion_mode: str
     occlusion_replacement: str | None
+    contrast: ContrastEvidence | None = None
+    """Predicted against expected label (on a misfire only)."""
     timings: dict[str, float] = field(default_factory=dict)
     """Seconds spent per part (``analysis``, ``attention_gradients``, ...) and ``total``."""
     mask: HeadMask = field(default_factory=HeadMask)
@@ -262,7 +311,7 @@ def explain_sentence(
     expected : str, optional
         The label the sentence should have had.
     extra_labels : sequence of str
-        More labels to explain (the what-if comparison adds the other sentence's prediction).
+        More labels to explain (the rewording comparison adds the other sentence's prediction).
     steps : int, default 64
         Integrated Gradients quadrature nodes.
     occlusion : {'remove', 'mask'}, default 'remove'
@@ -337,9 +386,39 @@ def explain_sentence(
                 grad_rollout_tokens=gr_tokens,
                 integrated_gradients=ig,
                 occlusion=drop,
+                occlusion_log_odds=occ.log_odds_drop(idx),
                 faithfulness=table,
                 hints=faithfulness_hints(table, drop),
             )
+        )
+    contrast = None
+    if expected is not None and expected != pred.label:
+        p, e = names.index(pred.label), names.index(expected)
+        grads_gap = grads.gradients[p] - grads.gradients[e]
+        gr_gap = merge_to_words(
+            grad_weighted_rollout(grads.attention, grads_gap)[CLASSIFICATION_POSITION], groups
+        )
+        token_gap = integral.attributions[p] - integral.attributions[e]
+        ig_gap = IntegratedGradientsResult(
+            attributions=merge_to_words(token_gap, groups),
+            token_attributions=token_gap,
+            baseline=used,
+            steps=steps,
+            rule=rule,
+            logit_input=float(integral.output_input[p] - integral.output_input[e]),
+            logit_baseline=float(integral.output_baseline[p] - integral.output_baseline[e]),
+        )
+        occ_gap = occ.gap_drop(indices[p], indices[e])
+        table = faithfulness(relevance_table(rollout_words, vw_words, gr_gap, ig_gap.attributions), occ_gap)
+        contrast = ContrastEvidence(
+            predicted=pred.label,
+            expected=expected,
+            gap=float(grads.logits[indices[p]] - grads.logits[indices[e]]),
+            grad_rollout=gr_gap,
+            integrated_gradients=ig_gap,
+            occlusion=occ_gap,
+            faithfulness=table,
+            hints=faithfulness_hints(table, occ_gap, unit="logit"),
         )
     watch.lap("assembly")
     return SentenceExplanation(
@@ -359,6 +438,7 @@ def explain_sentence(
         labels=evidence,
         occlusion_mode=occ.mode,
         occlusion_replacement=occ.replacement,
+        contrast=contrast,
         timings=watch.finish(),
         mask=analysis.mask,
     )

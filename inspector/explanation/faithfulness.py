@@ -32,6 +32,8 @@ MIN_WORDS = 3
 
 SMALL_DROP = 0.01
 """Occlusion whose largest probability change is below this is flagged as saturated."""
+SMALL_GAP = 0.1
+"""Contrastive occlusion whose largest change of the logit gap is below this (in logits) is flagged."""
 
 
 def merge_to_words(values: np.ndarray, groups: Sequence[Sequence[int]]) -> np.ndarray:
@@ -133,7 +135,9 @@ def faithfulness(relevances: Mapping[str, np.ndarray], occlusion: np.ndarray) ->
     return out
 
 
-def faithfulness_hints(table: Mapping[str, float | None], occlusion: np.ndarray) -> list[str]:
+def faithfulness_hints(
+    table: Mapping[str, float | None], occlusion: np.ndarray, *, unit: str = "probability"
+) -> list[str]:
     """Plain-language readings of a faithfulness table.
 
     Parameters
@@ -141,6 +145,9 @@ def faithfulness_hints(table: Mapping[str, float | None], occlusion: np.ndarray)
     table : mapping of method name to rho or None
     occlusion : ndarray of shape (m,)
         The word-level occlusion the table was computed against.
+    unit : {'probability', 'logit'}
+        What the occlusion measures: a probability drop (a label), or a drop of
+        the logit gap between two labels (the contrast).
 
     Returns
     -------
@@ -156,11 +163,18 @@ def faithfulness_hints(table: Mapping[str, float | None], occlusion: np.ndarray)
         return ["leaving out single words does not change this label at all; no ranking can be checked"]
     hints = []
     peak = float(np.abs(occlusion).max())
-    if peak < SMALL_DROP:
+    if unit == "logit" and peak < SMALL_GAP:
+        hints.append(
+            f"no single word moves the gap between the two labels by {fmt.weight(SMALL_GAP, 1)} logit or "
+            f"more (largest {fmt.weight(peak)}): the occlusion ranking rests on tiny differences, "
+            "so every rho here is weak evidence"
+        )
+    elif unit != "logit" and peak < SMALL_DROP:
         hints.append(
             f"no single word moves this label's probability by {fmt.points(SMALL_DROP)} or more "
             f"(largest {fmt.points(peak, 2)}): "
-            "the occlusion ranking rests on tiny differences, so every rho here is weak evidence"
+            "the occlusion ranking rests on tiny differences, so every rho here is weak evidence "
+            f"(the log-odds reading of occlusion does not flatten near {fmt.percent(1.0)})"
         )
     low = [m for m in ATTENTION_METHODS if table.get(m) is not None and table[m] < AGREEMENT_THRESHOLD]
     if low:

@@ -3,7 +3,7 @@
 One heat strip per label: rows are the relevance methods, columns the words.
 Each row is scaled by its own largest magnitude (the methods have different
 units), coloured on a diverging map so negative evidence stays visible, and
-labelled with its Spearman rho against occlusion. With a what-if comparison the
+labelled with its Spearman rho against occlusion. With a rewording the
 edited sentence sits in a second column and the per-head metric change below.
 """
 
@@ -18,13 +18,17 @@ from inspector import formatting as fmt
 from inspector.errors import HeadcountError
 from inspector.explanation.explain import CAUTION, RULE_NAMES, SentenceExplanation
 from inspector.explanation.faithfulness import METHOD_LABELS
-from inspector.explanation.whatif import WhatIfComparison
+from inspector.explanation.rewording import RewordingComparison
 from inspector.figures.files import atomic_write
 from inspector.measures.metrics import METRIC_LABELS
 
 FIGURE_FORMATS: tuple[str, ...] = ("png", "svg", "pdf")
 
-ROW_NAMES: dict[str, str] = {**METHOD_LABELS, "occlusion": "occlusion (p drop)"}
+ROW_NAMES: dict[str, str] = {
+    **METHOD_LABELS,
+    "occlusion": "occlusion (p drop)",
+    "occlusion_log_odds": "occlusion (log-odds drop)",
+}
 
 STRIP_CMAP = "PuOr_r"
 HEADS_CMAP = "coolwarm"
@@ -85,7 +89,7 @@ def _caption(sentences: list[SentenceExplanation], width: float) -> str:
     return "\n".join(textwrap.wrap(text, int(width * 15)))
 
 
-def explanation_figure(ex: SentenceExplanation, comparison: WhatIfComparison | None = None):
+def explanation_figure(ex: SentenceExplanation, comparison: RewordingComparison | None = None):
     """Build the figure (a matplotlib ``Figure``, not attached to any GUI)."""
     from matplotlib.figure import Figure
 
@@ -117,7 +121,7 @@ def explanation_figure(ex: SentenceExplanation, comparison: WhatIfComparison | N
     return fig
 
 
-def _heads_panel(ax, cmp: WhatIfComparison) -> None:
+def _heads_panel(ax, cmp: RewordingComparison) -> None:
     diff = cmp.difference
     bound = float(np.abs(diff).max()) or 1.0
     image = ax.imshow(diff, cmap=HEADS_CMAP, vmin=-bound, vmax=bound, aspect="auto", interpolation="nearest")
@@ -144,7 +148,7 @@ def _outline(x: int, y: int):
 
 
 def save_explanation_figure(
-    path: Path, ex: SentenceExplanation, comparison: WhatIfComparison | None = None
+    path: Path, ex: SentenceExplanation, comparison: RewordingComparison | None = None
 ) -> Path:
     """Render :func:`explanation_figure` to ``path`` (.png, .svg or .pdf), atomically."""
     kind = check_figure_path(path)

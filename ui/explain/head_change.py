@@ -1,4 +1,4 @@
-"""The per-head change map of a what-if: layers down, heads across, edited minus original.
+"""The per-head change map of a rewording: layers down, heads across, edited minus original.
 
 Each cell is one head; its shade grows with the size of the change (green where
 the metric rose, purple where it fell: the two ends of the diverging map, see
@@ -15,7 +15,7 @@ from PySide6.QtGui import QFont, QPalette, QPen
 from PySide6.QtWidgets import QWidget
 
 from inspector import formatting as fmt
-from inspector.explanation.whatif import HeadChange
+from inspector.explanation.rewording import HeadChange
 from ui.widgets.colormap import accent, dim_text, readable_text_on
 from ui.widgets.hover_view import HoverView
 from ui.widgets.signed import blend, signed_colour

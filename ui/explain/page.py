@@ -1,11 +1,11 @@
 """The explain page: why did the model give this sentence that label, and what would an edit change?
 
-Top: the sentence, its expected label, an edited copy ("What if"), and the
+Top: the sentence, its expected label, a reworded copy ("Rewording"), and the
 options of the evidence (occlusion by removing or masking words, the Integrated
 Gradients baseline and step count). Middle: the evidence for one label at a
-time (predicted / expected / predicted after the edit), the original and the
-edited sentence side by side. Bottom: how well each relevance agrees with
-occlusion, and what the edit did to every head. The computation runs on the
+time (predicted / expected / predicted versus expected / predicted after the
+rewording), the original and the reworded sentence side by side. Bottom: how
+well each relevance agrees with occlusion, and what the rewording did to every head. The computation runs on the
 window's :class:`ui.widgets.worker.JobRunner` ("explain" channel, newest request wins);
 what the page shows is derived by :class:`ui.explain.state.ExplainState`.
 """
@@ -55,10 +55,15 @@ from ui.widgets.signed import SignKey
 from ui.widgets.worker import MODEL_LOCK, JobRunner
 
 CHANNEL = "explain"
-ROLE_BUTTONS = {"predicted": "&Predicted", "expected": "&Expected", "edited": "&After the edit"}
+ROLE_BUTTONS = {
+    "predicted": "&Predicted",
+    "expected": "&Expected",
+    "contrast": "Predicted &vs expected",
+    "edited": "&After the rewording",
+}
 """Label switch texts (with their Alt+ keys); the label's name follows."""
 NO_EDIT_NOTE = (
-    "Type an edited copy of the sentence in \u2018What if\u2019 and press Explain to compare the two."
+    "Type a rewording of the sentence in \u2018Rewording\u2019 and press Explain to compare the two."
 )
 
 
@@ -73,7 +78,7 @@ def explanation_export(state: ExplainState) -> ExportJob:
 
 
 class ExplainPage(QWidget):
-    """Explain one sentence (usually a misfire), and compare it with an edited copy."""
+    """Explain one sentence (usually a misfire), and compare it with a rewording of it."""
 
     explained = Signal()
     """A new result (or a change of label or metric) has been pushed into every view."""
@@ -101,7 +106,7 @@ class ExplainPage(QWidget):
 
         request = self._request_box()
         self.original = SentenceSide("Original sentence", self)
-        self.edited_side = SentenceSide("Edited sentence", self)
+        self.edited_side = SentenceSide("Reworded sentence", self)
         sides = self._split(Qt.Orientation.Horizontal, [self.original, self.edited_side], [1, 1], [660, 660])
         self.agreement_panel = AgreementPanel(self)
         self.agreement = self.agreement_panel.table
@@ -150,12 +155,14 @@ class ExplainPage(QWidget):
         self.entry.setClearButtonEnabled(True)
         self.entry.returnPressed.connect(self.run)
         self.edited = QLineEdit(box)
-        self.edited.setAccessibleName("Edited sentence")
-        self.edited.setPlaceholderText("Optional: an edited copy to compare with \u2014 press Enter")
+        self.edited.setAccessibleName("Reworded sentence")
+        self.edited.setPlaceholderText(
+            "Optional: a rewording to compare with (change, add or drop words) \u2014 press Enter"
+        )
         self.edited.setClearButtonEnabled(True)
         self.edited.returnPressed.connect(self.run)
         self.copy_button = QPushButton("&Copy sentence \u2193", box)
-        self.copy_button.setToolTip("Start the edited copy from the sentence above")
+        self.copy_button.setToolTip("Start the rewording from the sentence above")
         self.copy_button.clicked.connect(self.copy_to_edit)
         self.expected = QComboBox(box)
         self.expected.setAccessibleName("Expected label")
@@ -163,9 +170,7 @@ class ExplainPage(QWidget):
         self.expected.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
         self.expected.activated.connect(self._expected_picked)
         self.explain_button = QPushButton("Explain", box)
-        self.explain_button.setToolTip(
-            "Explain the sentence (and compare the edited copy) \u2014 Ctrl+Return"
-        )
+        self.explain_button.setToolTip("Explain the sentence (and compare the rewording) \u2014 Ctrl+Return")
         self.explain_button.clicked.connect(self.run)
         self.occlusion_box = combo(box, {m: f"{m} the word" for m in OCCLUSION_MODES}, "Occlusion")
         self.occlusion_box.activated.connect(lambda _i: self.run())
@@ -189,7 +194,7 @@ class ExplainPage(QWidget):
         grid.addWidget(buddy("Expected &label:", self.expected), 0, 3)
         grid.addWidget(self.expected, 0, 4, 1, 3)
         grid.addWidget(self.explain_button, 0, 7)
-        grid.addWidget(buddy("&What if:", self.edited), 1, 0)
+        grid.addWidget(buddy("Re&wording:", self.edited), 1, 0)
         grid.addWidget(self.edited, 1, 1)
         grid.addWidget(self.copy_button, 1, 2)
         grid.addWidget(buddy("&Occlusion:", self.occlusion_box), 1, 3)
@@ -438,11 +443,16 @@ class ExplainPage(QWidget):
             if s is None:
                 panel.show_note(NO_EDIT_NOTE)
                 continue
+            if st.evidence(side) is None:
+                panel.show_note(
+                    f"\u201c{s.text}\u201d \u2192 {s.prediction.label}: no misfire, so no contrast to show"
+                )
+                continue
             panel.set_subtitle(f"\u201c{s.text}\u201d")
             panel.prediction.setText(st.prediction_text(side))
             panel.show_words(st.words(side), st.columns(side), st.changed_words(side))
             panel.show_reading(st.hints(side), label)
-            panel.captions.setText(f"{st.ig_caption(side)}.\n{st.occlusion_caption(s)}.")
+            panel.captions.setText(f"{st.ig_caption(side)}.\n{st.occlusion_note(side)}.")
         self.agreement_panel.show_table(st.agreement(), label, len(st.explanation.words))
         self.heads_panel.show_change(st.comparison, NO_EDIT_NOTE)
         self.explained.emit()
@@ -452,5 +462,6 @@ class ExplainPage(QWidget):
         for role, button in self.role_buttons.items():
             button.setVisible(role in roles)
             if role in roles:
-                button.setText(f"{ROLE_BUTTONS[role]} \u00b7 {roles[role]}")
+                named = role != "contrast"  # the two labels are on the buttons beside it
+                button.setText(f"{ROLE_BUTTONS[role]} \u00b7 {roles[role]}" if named else ROLE_BUTTONS[role])
             button.setChecked(role == self.state.role and role in roles)

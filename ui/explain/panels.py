@@ -25,7 +25,7 @@ from PySide6.QtWidgets import (
 
 from inspector import formatting as fmt
 from inspector.explanation.faithfulness import AGREEMENT_THRESHOLD, METHOD_LABELS
-from inspector.explanation.whatif import WhatIfComparison
+from inspector.explanation.rewording import RewordingComparison
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
 from ui.explain.head_change import HeadChangeMap
 from ui.explain.state import AgreementTable, MethodColumn, disagrees
@@ -182,7 +182,7 @@ class AgreementPanel(ExplainPanel):
 
 
 class HeadsPanel(ExplainPanel):
-    """The per-head change map of a what-if, the metric picker and the list of the heads that changed most."""
+    """The per-head change map of a rewording, the metric picker and the list of the heads that changed most."""
 
     metric_changed = Signal(str)
 
@@ -197,7 +197,7 @@ class HeadsPanel(ExplainPanel):
         row.setContentsMargins(8, 0, 8, 0)
         row.addWidget(self.map, 3)
         row.addWidget(self.list, 2)
-        super().__init__("What the edit did to the heads", body, parent)
+        super().__init__("What the rewording did to the heads", body, parent)
         self.metric_box = combo(self, {n: METRIC_LABELS[n] for n in METRIC_NAMES}, "Per-head metric")
         self.metric_box.setCurrentIndex(METRIC_NAMES.index(metric))
         self.metric_box.currentIndexChanged.connect(
@@ -205,19 +205,19 @@ class HeadsPanel(ExplainPanel):
         )
         self.add_control(self.metric_box, "&Metric:")
         self.key = SignKey(self)
-        self.key.set_text("Edited \u2212 original:", "fell", "rose")
+        self.key.set_text("Reworded \u2212 original:", "fell", "rose")
         self.footer.addWidget(self.key)
 
-    def show_change(self, cmp: WhatIfComparison | None, note: str) -> None:
-        """Fill the map and the list from ``cmp`` (``note`` instead when there is no what-if)."""
+    def show_change(self, cmp: RewordingComparison | None, note: str) -> None:
+        """Fill the map and the list from ``cmp`` (``note`` instead when there is no rewording)."""
         if cmp is None:
             self.map.set_data(None, None, [], note)
             self.list.setText("")
             self.set_subtitle("")
             return
         self.map.set_data(cmp.metric_before, cmp.metric_after, cmp.top_heads)
-        self.map.setToolTip(f"{METRIC_LABELS[cmp.metric]}: edited minus original sentence, per head")
-        self.set_subtitle("edited \u2212 original")
+        self.map.setToolTip(f"{METRIC_LABELS[cmp.metric]}: reworded minus original sentence, per head")
+        self.set_subtitle("reworded \u2212 original")
         rows = "".join(
             f"<tr><td>{fmt.head_name(h.layer, h.head)}</td>"
             f"<td align=right>&nbsp;{fmt.weight(h.before)} \u2192 {fmt.weight(h.after)}</td>"

@@ -1,12 +1,12 @@
 """What the explain page shows, as plain Python: no Qt in here.
 
-:class:`ExplainState` holds the latest explanation (and what-if comparison),
+:class:`ExplainState` holds the latest explanation (and rewording comparison),
 the chosen label role and per-head metric, and derives everything the page
 draws: one column of word relevances per method, the captions, the agreement
 table, the hints, the per-head difference and the CSV rows. The widgets only
 paint these, so every number on the page can be checked against
 :func:`inspector.explanation.explain.explain_sentence` and
-:func:`inspector.explanation.whatif.compare_sentences` without a window.
+:func:`inspector.explanation.rewording.compare_rewording` without a window.
 """
 
 from __future__ import annotations
@@ -19,23 +19,46 @@ import numpy as np
 from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask
-from inspector.explanation.explain import RULE_NAMES, LabelEvidence, SentenceExplanation, explain_sentence
+from inspector.explanation.explain import (
+    RULE_NAMES,
+    ContrastEvidence,
+    LabelEvidence,
+    SentenceExplanation,
+    explain_sentence,
+)
 from inspector.explanation.faithfulness import AGREEMENT_THRESHOLD, METHOD_LABELS
-from inspector.explanation.whatif import HeadChange, WhatIfComparison, compare_sentences, heads_that_changed
+from inspector.explanation.rewording import (
+    HeadChange,
+    RewordingComparison,
+    compare_rewording,
+    heads_that_changed,
+)
 
-METHODS: tuple[str, ...] = ("rollout", "value_weighted", "grad_rollout", "integrated_gradients", "occlusion")
-"""The relevance columns, in the order they are drawn (occlusion, the yardstick, last)."""
+METHODS: tuple[str, ...] = (
+    "rollout",
+    "value_weighted",
+    "grad_rollout",
+    "integrated_gradients",
+    "occlusion",
+    "occlusion_log_odds",
+)
+"""The relevance columns of a label, in the order they are drawn (occlusion, the yardstick, last)."""
+CONTRAST_METHODS: tuple[str, ...] = METHODS[:5]
+"""The columns of the contrast (its occlusion is already a log-ratio: the drop of the logit gap)."""
 
 METHOD_TITLES: dict[str, str] = {
     "rollout": "Rollout",
     "value_weighted": "Value-weighted",
     "grad_rollout": "Grad-weighted",
     "integrated_gradients": "Int. Gradients",
-    "occlusion": "Occlusion",
+    "occlusion": "Occlusion \u0394p",
+    "occlusion_log_odds": "Occl. \u0394log-odds",
 }
 """Short column titles (the readable names are in :data:`inspector.explanation.faithfulness.METHOD_LABELS`)."""
+CONTRAST_TITLES: dict[str, str] = {**METHOD_TITLES, "occlusion": "Occl. \u0394gap"}
+"""Column titles of the contrast."""
 
-SIGNED_METHODS = frozenset({"integrated_gradients", "occlusion"})
+SIGNED_METHODS = frozenset({"integrated_gradients", "occlusion", "occlusion_log_odds"})
 """Methods whose values can be negative (evidence against the label); drawn as two-sided bars."""
 
 LABEL_INDEPENDENT = frozenset({"rollout", "value_weighted"})
@@ -44,11 +67,14 @@ LABEL_INDEPENDENT = frozenset({"rollout", "value_weighted"})
 ROLES: dict[str, str] = {
     "predicted": "Predicted",
     "expected": "Expected",
-    "edited": "After the edit",
+    "contrast": "Predicted vs expected",
+    "edited": "After the rewording",
 }
 """Which label the relevance columns are for (key -> button text)."""
 
 SIDES: tuple[str, ...] = ("original", "edited")
+SIDE_NAMES: dict[str, str] = {"original": "original", "edited": "reworded"}
+"""How each side is named on screen (the rewording is the 'edited' side in the core and in JSON)."""
 
 BASELINE_TEXT = {
     "pad": "pad-token embeddings, special tokens kept",
@@ -73,7 +99,7 @@ class ExplainRequest:
     text: str
     expected: str | None = None
     edited: str = ""
-    """An edited copy to compare with; empty for no what-if."""
+    """A rewording to compare with; empty for none."""
     metric: str = DEFAULT_METRIC
     steps: int = 64
     occlusion: str = "remove"
@@ -88,7 +114,7 @@ class ExplainRequest:
         return bool(self.edited.strip())
 
     def options(self) -> dict:
-        """Keyword arguments shared by ``explain_sentence`` and ``compare_sentences``."""
+        """Keyword arguments shared by ``explain_sentence`` and ``compare_rewording``."""
         return dict(
             steps=self.steps, occlusion=self.occlusion, baseline=self.baseline, rule=self.rule, mask=self.mask
         )
@@ -100,8 +126,8 @@ class ExplainResult:
 
     request: ExplainRequest
     explanation: SentenceExplanation
-    """The original sentence (``comparison.original`` when there is a what-if)."""
-    comparison: WhatIfComparison | None = None
+    """The original sentence (``comparison.original`` when there is a rewording)."""
+    comparison: RewordingComparison | None = None
 
 
 def compute_explanation(lm: LoadedModel, request: ExplainRequest) -> ExplainResult:
@@ -116,7 +142,7 @@ def compute_explanation(lm: LoadedModel, request: ExplainRequest) -> ExplainResu
     if torch.get_num_threads() != INTERACTIVE_TORCH_THREADS:
         torch.set_num_threads(INTERACTIVE_TORCH_THREADS)
     if request.has_edit:
-        cmp = compare_sentences(
+        cmp = compare_rewording(
             lm,
             request.text,
             request.edited,
@@ -130,7 +156,7 @@ def compute_explanation(lm: LoadedModel, request: ExplainRequest) -> ExplainResu
     return ExplainResult(request, ex)
 
 
-def with_metric(cmp: WhatIfComparison, metric: str, top: int = TOP_HEADS) -> WhatIfComparison:
+def with_metric(cmp: RewordingComparison, metric: str, top: int = TOP_HEADS) -> RewordingComparison:
     """The same comparison read through another per-head metric (no model call: both sentences keep theirs)."""
     before = cmp.original.head_metrics.get(metric)
     after = cmp.edited.head_metrics.get(metric)
@@ -191,7 +217,7 @@ class ExplainState:
     result: ExplainResult | None = None
     role: str = "predicted"
     metric: str = DEFAULT_METRIC
-    comparison: WhatIfComparison | None = None
+    comparison: RewordingComparison | None = None
     """The result's comparison, read through :attr:`metric`."""
 
     # -- changes ---------------------------------------------------------------------------------
@@ -237,6 +263,8 @@ class ExplainState:
         out = {"predicted": ex.prediction.label}
         if ex.expected is not None and ex.expected != ex.prediction.label:
             out["expected"] = ex.expected
+        if ex.contrast is not None:
+            out["contrast"] = ex.contrast.label
         if self.comparison is not None:
             after = self.comparison.edited.prediction.label
             if after not in out.values():
@@ -248,42 +276,53 @@ class ExplainState:
         return self.roles()[self.role]
 
     def role_text(self, label: str) -> str:
-        """Which roles a label plays: 'predicted', 'expected' (in a what-if: 'original prediction', 'edited prediction')."""
+        """Which roles a label plays: 'predicted', 'expected' (in a rewording: 'original prediction', 'reworded prediction')."""
         ex = self.explanation
-        what_if = self.comparison is not None
+        reworded = self.comparison is not None
         parts = []
         if label == ex.prediction.label:
-            parts.append("original prediction" if what_if else "predicted")
-        if what_if and label == self.comparison.edited.prediction.label:
-            parts.append("edited prediction")
+            parts.append("original prediction" if reworded else "predicted")
+        if reworded and label == self.comparison.edited.prediction.label:
+            parts.append("reworded prediction")
         if label == ex.expected:
             parts.append("expected")
         return " + ".join(parts) or "compared"
 
-    def evidence(self, side: str) -> LabelEvidence | None:
+    @property
+    def contrastive(self) -> bool:
+        """True when the columns show the contrast (predicted against expected label)."""
+        return self.role == "contrast" and "contrast" in self.roles()
+
+    def evidence(self, side: str) -> LabelEvidence | ContrastEvidence | None:
+        """The chosen label's evidence in ``side`` (the contrast, when that sentence is a misfire too)."""
         s = self.sentence(side)
-        return None if s is None else s.evidence(self.label())
+        if s is None:
+            return None
+        if self.contrastive:
+            return s.contrast
+        return s.evidence(self.label())
 
     def columns(self, side: str) -> list[MethodColumn]:
-        """The five relevance columns of ``side`` for the chosen label (empty when the side is missing)."""
+        """The relevance columns of ``side`` for the chosen label (empty when the side is missing)."""
         s, ev = self.sentence(side), self.evidence(side)
         if s is None or ev is None:
             return []
         table = ev.relevances(s)
+        contrast = isinstance(ev, ContrastEvidence)
+        titles = CONTRAST_TITLES if contrast else METHOD_TITLES
         out = []
-        for method in METHODS:
-            rho = ev.faithfulness.get(method) if method != "occlusion" else None
-            if method == "occlusion":
-                note, tip = self.occlusion_short(s), self.occlusion_caption(s)
+        for method in CONTRAST_METHODS if contrast else METHODS:
+            rho = ev.faithfulness.get(method)
+            if method.startswith("occlusion"):
+                note = self.occlusion_short(s)
+                tip = self.occlusion_caption(s, method if not contrast else "occlusion_gap")
             else:
                 note = f"\u03c1 {fmt.correlation(rho)}"
                 tip = f"{METHOD_LABELS[method]}; Spearman \u03c1 against occlusion {fmt.correlation(rho)}"
                 if method in LABEL_INDEPENDENT:
                     tip += " (the same for every label)"
             out.append(
-                MethodColumn(
-                    method, METHOD_TITLES[method], table[method], method in SIGNED_METHODS, rho, note, tip
-                )
+                MethodColumn(method, titles[method], table[method], method in SIGNED_METHODS, rho, note, tip)
             )
         return out
 
@@ -310,8 +349,13 @@ class ExplainState:
             return ""
         ig = ev.integrated_gradients
         baseline = BASELINE_TEXT.get(ig.baseline, ig.baseline)
+        what = (
+            f"logit of {ev.predicted} minus logit of {ev.expected}"
+            if isinstance(ev, ContrastEvidence)
+            else f"logit of {ev.label}"
+        )
         return (
-            f"Integrated Gradients (logit of {ev.label}): baseline \u2018{ig.baseline}\u2019 ({baseline}), "
+            f"Integrated Gradients ({what}): baseline \u2018{ig.baseline}\u2019 ({baseline}), "
             f"{fmt.count(ig.steps, 'step')}, {RULE_NAMES[ig.rule]}; completeness error "
             f"{fmt.number(ig.completeness_error, 2, sign=True)} on a logit gap of {fmt.signed(ig.logit_difference)}"
         )
@@ -321,13 +365,20 @@ class ExplainState:
         return "word removed" if s.occlusion_mode == "remove" else f"as {s.occlusion_replacement}"
 
     @staticmethod
-    def occlusion_caption(s: SentenceExplanation) -> str:
+    def occlusion_caption(s: SentenceExplanation, reading: str = "occlusion") -> str:
+        """What an occlusion lane measures: ``occlusion`` (probability), ``occlusion_log_odds``, ``occlusion_gap``."""
         how = (
             "removed (the rest shifts up)"
             if s.occlusion_mode == "remove"
             else f"masked (its pieces replaced by {s.occlusion_replacement})"
         )
-        return f"Occlusion: drop of the label's probability when each word is {how}"
+        what = {
+            "occlusion": "drop of the label's probability (\u0394p)",
+            "occlusion_log_odds": "drop of the label's log-odds log(p/(1\u2212p)), which does not flatten near "
+            + fmt.percent(1.0),
+            "occlusion_gap": "drop of the gap logit(predicted) \u2212 logit(expected) = log(p_predicted/p_expected)",
+        }[reading]
+        return f"Occlusion: {what} when each word is {how}"
 
     def prediction_text(self, side: str) -> str:
         """Two lines of rich text: the prediction, its probability and the misfire mark; then the runners-up
@@ -358,22 +409,21 @@ class ExplainState:
     # -- agreement -------------------------------------------------------------------------------
     def agreement(self) -> AgreementTable:
         """Spearman rho per method for every explained label of each sentence shown."""
-        rows, headers = [], []
+        rows, headers, found = [], [], []
         for side in SIDES:
             s = self.sentence(side)
             if s is None:
                 continue
-            for ev in map(s.evidence, [e.label for e in self.explanation.labels]):
+            shown = [s.evidence(e.label) for e in self.explanation.labels]
+            shown += [s.contrast] if s.contrast is not None else []
+            for ev in shown:
                 rows.append((side, ev.label))
+                found.append(ev)
+                role = "contrast" if isinstance(ev, ContrastEvidence) else self.role_text(ev.label)
                 headers.append(
-                    f"{ev.label} ({self.role_text(ev.label)})"
-                    if self.comparison is None
-                    else f"{side}: {ev.label}"
+                    f"{ev.label} ({role})" if self.comparison is None else f"{SIDE_NAMES[side]}: {ev.label}"
                 )
-        values = [
-            [self.sentence(side).evidence(label).faithfulness.get(method) for method in METHOD_LABELS]
-            for side, label in rows
-        ]
+        values = [[ev.faithfulness.get(method) for method in METHOD_LABELS] for ev in found]
         titles = [METHOD_TITLES[m] for m in METHOD_LABELS]
         return AgreementTable(list(METHOD_LABELS), titles, rows, headers, values)
 
@@ -389,29 +439,53 @@ class ExplainState:
             f"{AGREEMENT_THRESHOLD}, so these relevances rank the words much as occlusion does."
         ]
 
-    # -- what-if ---------------------------------------------------------------------------------
+    # -- rewording ---------------------------------------------------------------------------------
     def head_difference(self) -> np.ndarray | None:
-        """[layers, heads] edited minus original in the chosen metric (None without a what-if)."""
+        """[layers, heads] edited minus original in the chosen metric (None without a rewording)."""
         return None if self.comparison is None else self.comparison.difference
 
     def top_heads(self) -> list[HeadChange]:
         return [] if self.comparison is None else list(self.comparison.top_heads)
 
+    def occlusion_note(self, side: str) -> str:
+        """The caption line of the occlusion lanes shown for ``side``."""
+        s = self.sentence(side)
+        if s is None:
+            return ""
+        if self.contrastive:
+            return self.occlusion_caption(s, "occlusion_gap")
+        both = self.occlusion_caption(s).replace(
+            "(\u0394p)",
+            "(\u0394p) and of its log-odds log(p/(1\u2212p)), which does not flatten near "
+            + fmt.percent(1.0)
+            + ",",
+        )
+        return both
+
     # -- export ----------------------------------------------------------------------------------
     def csv_table(self) -> tuple[list[str], list[list[object]]]:
-        """Rows ``sentence, index, word`` then one column per method per label (``label:method``).
+        """Rows ``side, text, predicted, expected, index, word``, then one column per method per label.
 
-        Labels are every label explained (the predicted and expected ones, and the
-        edited sentence's prediction in a what-if), so the file holds every number
-        the page can show whichever label is switched on.
+        Columns are named ``label:method`` for every label explained (the predicted
+        and expected ones, and the reworded sentence's prediction in a rewording),
+        then ``contrast:method`` (the predicted minus the expected label's logit,
+        empty where that sentence is no misfire), so the file holds every number
+        the page can show whichever label is switched on, with the sentence and its
+        labels on every row.
         """
         sides = [side for side in SIDES if self.sentence(side) is not None]
         labels = [ev.label for ev in self.explanation.labels]
-        header = ["sentence", "index", "word"] + [f"{label}:{m}" for label in labels for m in METHODS]
+        header = ["side", "text", "predicted", "expected", "index", "word"]
+        header += [f"{label}:{m}" for label in labels for m in METHODS]
+        header += [f"contrast:{m}" for m in CONTRAST_METHODS]
         rows: list[list[object]] = []
         for side in sides:
             s = self.sentence(side)
             tables = [s.evidence(label).relevances(s) for label in labels]
+            gap = s.contrast.relevances(s) if s.contrast is not None else None
             for i, word in enumerate(s.words):
-                rows.append([side, i, word] + [float(t[m][i]) for t in tables for m in METHODS])
+                row = [side, s.text, s.prediction.label, s.expected or "", i, word]
+                row += [float(t[m][i]) for t in tables for m in METHODS]
+                row += [float(gap[m][i]) if gap is not None else "" for m in CONTRAST_METHODS]
+                rows.append(row)
         return header, rows

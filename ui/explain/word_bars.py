@@ -1,7 +1,7 @@
 """Word evidence: one line per word, one lane per relevance method, drawn with QPainter.
 
 Words run down in reading order and the methods run across, so a long sentence
-and the side-by-side what-if fit without sideways scrolling, and a word's five
+and the side-by-side rewording fit without sideways scrolling, and a word's five
 readings sit on one line. Each lane is scaled to its own largest magnitude
 (the methods have different units); the numbers are printed and given on hover.
 Attention lanes (never negative) are shaded with the weight colour map; the

@@ -1,4 +1,4 @@
-"""What-if: explain a sentence and an edited copy side by side."""
+"""Rewording: explain a sentence and a reworded (edited) copy side by side."""
 
 from __future__ import annotations
 
@@ -50,7 +50,7 @@ class WordChange:
 
 
 @dataclass
-class WhatIfComparison:
+class RewordingComparison:
     """Two explanations of the same model, and how the heads reacted to the edit."""
 
     original: SentenceExplanation
@@ -100,7 +100,7 @@ def word_changes(original: list[str], edited: list[str]) -> list[WordChange]:
     return [WordChange(op, (i1, i2), (j1, j2)) for op, i1, i2, j1, j2 in matcher.get_opcodes()]
 
 
-def compare_sentences(
+def compare_rewording(
     lm: LoadedModel,
     original: str,
     edited: str,
@@ -113,7 +113,7 @@ def compare_sentences(
     baseline: Baseline = "pad",
     rule: Rule = "gauss-legendre",
     mask: HeadMask | None = None,
-) -> WhatIfComparison:
+) -> RewordingComparison:
     """Explain ``original`` and ``edited`` for the same labels and compare them.
 
     Parameters
@@ -132,7 +132,7 @@ def compare_sentences(
 
     Returns
     -------
-    WhatIfComparison
+    RewordingComparison
         Both explanations, each covering the original's prediction, the edited
         sentence's prediction and the expected label; the metric per head in
         both and ``after - before``; the most-changed heads; a word alignment.
@@ -158,7 +158,7 @@ def compare_sentences(
     b = explain_sentence(lm, edited, expected=expected, extra_labels=labels, **options)
     before = a.head_metrics.get(metric)
     after = b.head_metrics.get(metric)
-    return WhatIfComparison(
+    return RewordingComparison(
         original=a,
         edited=b,
         labels=labels,
