@@ -41,6 +41,7 @@ from inspector.checkpoint.masks import HeadMask
 from inspector.comparison.pairing import check_comparable
 from inspector.comparison.sentence import SentenceComparison, compare_analyses
 from inspector.errors import HeadcountError
+from inspector.figures.paper import PAPER_NAMES
 from inspector.figures.sentence import CAUTION
 from inspector.measures.analysis import Prediction, SentenceAnalysis, analyze_sentence, predict_sentence
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
@@ -169,7 +170,7 @@ class MainWindow(QMainWindow):
             self,
             self.runner,
             self.settings,
-            lambda kind: build_export(self.sentence_page.state, kind),
+            lambda kind: build_export(self.sentence_page.state, kind, self.exporter.paper()),
             EXPORT_KINDS,
         )
 
@@ -221,7 +222,7 @@ class MainWindow(QMainWindow):
         self.model_loaded.connect(self._explain_model)
         self.explain_page.status.connect(lambda text: self.statusBar().showMessage(text, 6000))
         self.explain_page.error.connect(self.show_error)
-        self.exporter.finished.connect(self._export_done)
+        self.exporter.described.connect(lambda text: self.statusBar().showMessage(text, 8000))
         self._connect_corpus()
         self._connect_comparison()
         self.exporter.failed.connect(lambda text: self.show_error(f"Export failed: {text}"))
@@ -316,6 +317,14 @@ class MainWindow(QMainWindow):
             "Ctrl+Shift+E",
             "One page: head mosaic, close-up and relevance band",
         )
+        export_menu.addSeparator()
+        paper_menu = export_menu.addMenu("&Paper size")
+        papers = QActionGroup(self)
+        for key, text in PAPER_NAMES.items():
+            act = self._action(paper_menu, text, lambda _c=False, k=key: self.exporter.set_paper(k))
+            act.setCheckable(True)
+            act.setChecked(self.exporter.paper() == key)
+            papers.addAction(act)
 
         view_menu = bar.addMenu("&View")
         view_menu.addAction(page.words_action)
@@ -686,10 +695,6 @@ class MainWindow(QMainWindow):
             self.show_error(str(exc))
             return
         self.exporter.ask_for(job, "Model comparison")
-
-    def _export_done(self, paths: list) -> None:
-        names = " and ".join(Path(p).name for p in paths)
-        self.statusBar().showMessage(f"Saved {names} in {Path(paths[0]).parent}", 8000)
 
     # -- busy state --------------------------------------------------------------------------------
     def is_busy(self) -> bool:

@@ -285,10 +285,11 @@ def cmd_explain(args: argparse.Namespace) -> int:
         explanation = comparison.original
     else:
         explanation = explain_sentence(lm, args.text, expected=args.expected, **options)
+    written = []
     if args.figure:
         from inspector.figures.explanation import save_explanation_figure
 
-        save_explanation_figure(Path(args.figure), explanation, comparison)
+        written = save_explanation_figure(Path(args.figure), explanation, comparison, paper=args.paper)
     if args.json:
         doc = explanation_json(explanation)
         if comparison is not None:
@@ -302,8 +303,8 @@ def cmd_explain(args: argparse.Namespace) -> int:
         print_explanation(comparison.edited, sys.stdout)
         print_comparison(comparison, sys.stdout)
     print(f"\ncaution: {CAUTION}", file=sys.stdout)
-    if args.figure:
-        print(f"figure written to {args.figure}", file=sys.stdout)
+    if written:
+        print("figure written to " + ", ".join(str(p) for p in written), file=sys.stdout)
     return 0
 
 
@@ -346,6 +347,13 @@ def register(sub: argparse._SubParsersAction) -> None:
         "--top", type=int, default=5, help="how many most-changed heads --compare lists (default 5)"
     )
     p.add_argument("--json", action="store_true", help="print one JSON object instead of text")
-    p.add_argument("--figure", metavar="FILE", help="write a figure of the relevances (.png, .svg or .pdf)")
+    p.add_argument(
+        "--figure",
+        metavar="FILE",
+        help="write the explanation as the Explain page draws it (.pdf: one file; .png/.svg: one file per page)",
+    )
+    p.add_argument(
+        "--paper", choices=("a4", "letter"), default="a4", help="paper size of --figure (default a4)"
+    )
     add_mask_option(p)
     p.set_defaults(func=cmd_explain)

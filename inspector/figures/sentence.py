@@ -14,26 +14,36 @@ figure state.
 
 from __future__ import annotations
 
-import textwrap
 from collections.abc import Sequence
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-from matplotlib import rc_context
 from matplotlib.figure import Figure
 from matplotlib.patches import PathPatch, Rectangle
 from matplotlib.path import Path as MplPath
 
 from inspector import formatting as fmt
 from inspector import palette
-from inspector.errors import HeadcountError
-from inspector.figures.files import atomic_write, save_csv
+from inspector.figures.caption import Caption, prediction_line
+from inspector.figures.files import save_csv
+from inspector.figures.pages import FORMATS, figure_format, save_pages
+from inspector.figures.paper import (
+    DEFAULT_PAPER,
+    MARGIN,
+    MIN_FONT,
+    TITLE_FONT,
+    Page,
+    line_height,
+    text_width,
+    tick_step,
+    wrap,
+)
+
+__all__ = ["FORMATS", "Caption", "figure_format"]
 
 CMAP_NAME = palette.SEQUENTIAL
 ACCENT = palette.ACCENT
-FORMATS = {".png": "png", ".svg": "svg", ".pdf": "pdf"}
-PNG_DPI = 220
+CAPTION_FONT = 7.5
 CAUTION = (
     "Attention shows where a head looked, not why the model decided "
     "(Jain & Wallace 2019; Wiegreffe & Pinter 2019)."
@@ -42,85 +52,80 @@ CAUTION = (
 Table = tuple[list[str], list[list[object]]]
 
 
-@dataclass(frozen=True)
-class Caption:
-    """What a figure shows, printed under it."""
-
-    model: str
-    sentence: str
-    view: str
-    where: str
-    metric: str = ""
-    scale: str = ""
-
-    def lines(self, width: int = 110) -> list[str]:
-        parts = [
-            f"Model: {self.model}.  View: {self.view} ({self.where}).",
-            f"Sentence: \u201c{self.sentence}\u201d",
-        ]
-        if self.metric:
-            parts.append(f"Metric: {self.metric}.")
-        if self.scale:
-            parts.append(f"Colour: {CMAP_NAME}, {self.scale}.")
-        out: list[str] = []
-        for part in parts:
-            out += textwrap.wrap(part, width) or [""]
-        return out
-
-    def text(self, width: int = 110) -> str:
-        return "\n".join(self.lines(width))
-
-
 # -- layout helpers --------------------------------------------------------------------------------
-_CAPTION_LINE_IN = 0.17
+def _fits(width: float, height: float) -> bool:
+    short, long = sorted((width, height))
+    return short <= 8.27 + 1e-6 and long <= 10.9 + 1e-6
 
 
 def _figure(
     width: float, body_height: float, caption: Caption, extra_lines: Sequence[str] = ()
 ) -> tuple[Figure, float]:
-    """A figure with room for the caption below; returns it and the caption's height as a figure fraction."""
-    chars = max(int(width * 16), 40)
-    lines = caption.lines(chars) + list(extra_lines)
-    cap_h = 0.12 + _CAPTION_LINE_IN * len(lines)
-    fig = Figure(figsize=(width, body_height + cap_h))
-    frac = cap_h / (body_height + cap_h)
-    fig.text(
-        0.015,
-        frac - 0.04 / (body_height + cap_h),
-        "\n".join(lines),
-        ha="left",
-        va="top",
-        fontsize=7.5,
-        linespacing=1.35,
-    )
-    return fig, frac
+    """A figure with the caption below the body, fitted to A4 and Letter; returns it and the caption's
+    height as a figure fraction.
 
-
-def _tick_step(count: int, limit: int) -> int:
-    return max(1, int(np.ceil(count / limit)))
+    The body shrinks (never the fonts) when the whole would not fit on paper.
+    """
+    width = min(width, 10.9)
+    lines = caption.lines(width - 0.3, CAPTION_FONT)
+    for extra in extra_lines:
+        lines += wrap(extra, width - 0.3, CAPTION_FONT)
+    cap_h = 0.18 + line_height(CAPTION_FONT) * len(lines)
+    room = (10.9 if width <= 8.27 else 8.27) - cap_h
+    body_height = max(1.0, min(body_height, room))
+    total = body_height + cap_h
+    page = Page(width, total)
+    page.lines(0.15, body_height + 0.1, lines, CAPTION_FONT, color=palette.DIM_INK)
+    return page.fig, cap_h / total
 
 
 def _cmap():
     return palette.sequential_map()
 
 
+def _colour_bar(fig: Figure, image, ax, label: str, *, fraction: float, pad: float) -> None:
+    bar = fig.colorbar(image, ax=ax, fraction=fraction, pad=pad)
+    bar.set_label(label, fontsize=MIN_FONT + 1)
+    bar.ax.tick_params(labelsize=MIN_FONT)
+
+
+def _axes_inches(ax) -> tuple[float, float]:
+    """(width, height) of an axes in inches."""
+    fig_w, fig_h = ax.figure.get_size_inches()
+    pos = ax.get_position()
+    return pos.width * fig_w, pos.height * fig_h
+
+
 # -- drawing into axes -----------------------------------------------------------------------------
 def draw_matrix(
-    ax, matrix: np.ndarray, labels: Sequence[str], *, query: int | None = None, fontsize: float = 8
+    ax,
+    matrix: np.ndarray,
+    labels: Sequence[str],
+    *,
+    query: int | None = None,
+    fontsize: float = 8,
+    ticks_on_top: bool = True,
 ):
-    """Heatmap of one [m, m] matrix with token labels; returns the image for a colour bar."""
+    """Heatmap of one [m, m] matrix with token labels; returns the image for a colour bar.
+
+    Labels are thinned (every n-th token) so they never touch at ``fontsize``.
+    """
     m = matrix.shape[0]
+    fontsize = max(fontsize, MIN_FONT)
     image = ax.imshow(
         matrix, cmap=_cmap(), vmin=0.0, vmax=max(float(matrix.max()), 1e-12), interpolation="nearest"
     )
-    step = _tick_step(m, 64)
+    w, h = _axes_inches(ax)
+    side = min(w, h)
+    step = tick_step(m, side, fontsize)
     ticks = np.arange(0, m, step)
     ax.set_yticks(ticks, [labels[i] for i in ticks], fontsize=fontsize)
     ax.set_xticks(ticks, [labels[i] for i in ticks], fontsize=fontsize, rotation=90)
-    ax.xaxis.tick_top()
+    if ticks_on_top:
+        ax.xaxis.tick_top()
+        ax.xaxis.set_label_position("top")
     ax.set_ylabel("query token", fontsize=fontsize + 1)
     ax.set_xlabel("key token", fontsize=fontsize + 1)
-    ax.xaxis.set_label_position("top")
     ax.tick_params(length=2, pad=2)
     if query is not None:
         ax.add_patch(Rectangle((-0.5, query - 0.5), m, 1, fill=False, edgecolor=ACCENT, linewidth=1.4))
@@ -146,26 +151,41 @@ def draw_mosaic(
     *,
     per_head: bool,
     selected: tuple[int, int] | None = None,
-    fontsize: float = 7,
+    fontsize: float = MIN_FONT,
 ):
-    """Every head as a small heatmap with its metric value printed under it."""
+    """Every head as a small heatmap with its metric value printed under it (when the number fits)."""
     L, H, m, _ = attention.shape
+    fontsize = max(fontsize, MIN_FONT)
     array, px, py = mosaic_array(attention, per_head)
     image = ax.imshow(array, cmap=_cmap(), vmin=0.0, vmax=1.0, interpolation="nearest", aspect="equal")
-    number_size = float(np.clip(fontsize * 10 / max(H, 10), 3.2, fontsize))
-    for layer in range(L):
-        for head in range(H):
-            ax.text(
-                head * px + m - 0.5,
-                layer * py + m + (py - m) * 0.42 - 0.5,
-                fmt.weight(metric[layer, head], 2),
-                ha="right",
-                va="center",
-                fontsize=number_size,
-                color="#333333",
-            )
-    ax.set_xticks(np.arange(H) * px + m / 2 - 0.5, [fmt.head_tick(h) for h in range(H)], fontsize=fontsize)
-    ax.set_yticks(np.arange(L) * py + m / 2 - 0.5, [fmt.layer_name(l) for l in range(L)], fontsize=fontsize)
+    w, h = _axes_inches(ax)
+    scale = min(w / array.shape[1], h / array.shape[0])  # inches per array cell (aspect equal)
+    texts = fmt.column(metric.ravel())
+    fits = (
+        max(text_width(t, MIN_FONT) for t in texts) <= 0.95 * m * scale and (py - m) * scale >= MIN_FONT / 72
+    )
+    if fits:
+        for layer in range(L):
+            for head in range(H):
+                ax.text(
+                    head * px + m - 0.5,
+                    layer * py + m + (py - m) * 0.45 - 0.5,
+                    texts[layer * H + head],
+                    ha="right",
+                    va="center",
+                    fontsize=MIN_FONT,
+                    color="#333333",
+                )
+    xs = tick_step(H, H * px * scale, fontsize, pitch=2.2)
+    ys = tick_step(L, L * py * scale, fontsize)
+    ax.set_xticks(
+        np.arange(0, H, xs) * px + m / 2 - 0.5, [fmt.head_tick(h) for h in range(0, H, xs)], fontsize=fontsize
+    )
+    ax.set_yticks(
+        np.arange(0, L, ys) * py + m / 2 - 0.5,
+        [fmt.layer_name(l) for l in range(0, L, ys)],
+        fontsize=fontsize,
+    )
     ax.xaxis.tick_top()
     ax.tick_params(length=0, pad=2)
     for spine in ax.spines.values():
@@ -182,60 +202,65 @@ def draw_mosaic(
                 linewidth=1.5,
             )
         )
-    return image
+    return image, fits
 
 
-def chip_layout(labels: Sequence[str], width_chars: float) -> list[tuple[float, int, float]]:
-    """(x, line, width) of each word chip, in character units, wrapped at ``width_chars``."""
+CHIP_H, CHIP_GAP, LINE_PITCH = 0.24, 0.06, 0.46
+"""Relevance chips: height, horizontal gap and line pitch in inches (the number sits under each chip)."""
+NUMBER_FONT = MIN_FONT
+
+
+def chip_layout(
+    labels: Sequence[str], width: float, fontsize: float, numbers: Sequence[str] = ()
+) -> list[tuple[float, int, float]]:
+    """(x, line, width) of each word chip in inches, wrapped at ``width``; a chip is as wide as its word or
+    the number printed under it, whichever is wider, so numbers never run together."""
     out, x, line = [], 0.0, 0
-    for label in labels:
-        w = len(label) + 1.6
-        if x + w > width_chars and x > 0:
+    numbers = list(numbers) or [""] * len(labels)
+    for label, number in zip(labels, numbers):
+        w = max(text_width(label, fontsize), text_width(number, NUMBER_FONT)) + 0.14
+        if x + w > width and x > 0:
             x, line = 0.0, line + 1
         out.append((x, line, w))
-        x += w + 0.6
+        x += w + CHIP_GAP
     return out
 
 
-def draw_relevance(
-    ax,
-    values: np.ndarray,
-    labels: Sequence[str],
-    *,
-    width_chars: float,
-    fontsize: float = 9,
-    min_lines: int = 1,
-):
-    """The sentence as wrapped chips coloured by relevance, value printed under each chip."""
+def relevance_lines(labels: Sequence[str], values: np.ndarray, width: float, fontsize: float) -> int:
+    """How many lines of chips :func:`draw_relevance` needs at ``width`` inches."""
+    layout = chip_layout(labels, width, fontsize, fmt.column(values) if len(values) else ())
+    return (layout[-1][1] + 1) if layout else 1
+
+
+def draw_relevance(ax, values: np.ndarray, labels: Sequence[str], *, fontsize: float = 9):
+    """The sentence as wrapped chips coloured by relevance, each value printed under its chip.
+
+    The axes' data units are inches (the axes is measured), so chips, words and
+    numbers are laid out at their printed size.
+    """
     cmap = _cmap()
+    width, height = _axes_inches(ax)
     vmax = max(float(values.max()), 1e-12) if values.size else 1.0
-    layout = chip_layout(labels, width_chars)
-    lines = (layout[-1][1] + 1) if layout else 1
-    for (x, line, w), label, value in zip(layout, labels, values):
+    numbers = fmt.column(values) if len(values) else []
+    layout = chip_layout(labels, width, fontsize, numbers)
+    for (x, line, w), label, value, number in zip(layout, labels, values, numbers):
         colour = cmap(float(value) / vmax)
-        lum = 0.2126 * colour[0] ** 2.2 + 0.7152 * colour[1] ** 2.2 + 0.0722 * colour[2] ** 2.2
-        y = -line * 1.9
-        ax.add_patch(Rectangle((x, y - 0.6), w, 1.2, facecolor=colour, edgecolor="#999999", linewidth=0.4))
+        y = line * LINE_PITCH
+        ax.add_patch(Rectangle((x, y), w, CHIP_H, facecolor=colour, edgecolor="#999999", linewidth=0.4))
         ax.text(
             x + w / 2,
-            y,
+            y + CHIP_H / 2,
             label,
             ha="center",
             va="center",
             fontsize=fontsize,
-            color="#111111" if lum > 0.22 else "white",
+            color=palette.text_on(colour),
         )
         ax.text(
-            x + w / 2,
-            y - 0.85,
-            fmt.weight(value),
-            ha="center",
-            va="center",
-            fontsize=fontsize * 0.62,
-            color="#444444",
+            x + w / 2, y + CHIP_H + 0.03, number, ha="center", va="top", fontsize=NUMBER_FONT, color="#444444"
         )
-    ax.set_xlim(-0.3, width_chars + 0.3)
-    ax.set_ylim(-(max(lines, min_lines) - 1) * 1.9 - 1.2, 0.8)
+    ax.set_xlim(0, width)
+    ax.set_ylim(height, 0)
     ax.set_aspect("auto")
     ax.axis("off")
     from matplotlib.cm import ScalarMappable
@@ -252,32 +277,77 @@ def draw_arcs(
     *,
     query: int | None,
     fontsize: float = 9,
-) -> None:
-    """Tokens on one line in reading order; arcs above look back, arcs below look ahead."""
-    widths = [len(t) + 2.0 for t in labels]
-    centres = np.cumsum([0.0] + [w + 0.6 for w in widths[:-1]]) + np.array(widths) / 2
-    total = float(centres[-1] + widths[-1] / 2) if labels else 1.0
-    for i, (c, w, label) in enumerate(zip(centres, widths, labels)):
+) -> str:
+    """Tokens on one line in reading order; arcs above look back, arcs below look ahead.
+
+    Returns a note for the caption ('' when every token is labelled). The axes'
+    data units are inches: when the words do not fit side by side, tokens become
+    evenly spaced marks with upright labels, thinned to every n-th token.
+    """
+    width, height = _axes_inches(ax)
+    fontsize = max(fontsize, MIN_FONT)
+    n = len(labels)
+    widths = [text_width(t, fontsize) + 0.1 for t in labels]
+    upright = sum(widths) + 0.05 * max(n - 1, 0) > width
+    note = ""
+    if upright:
+        pitch = width / max(n, 1)
+        centres = (np.arange(n) + 0.5) * pitch
+        widths = [pitch * 0.8] * n
+        step = tick_step(n, width, fontsize)
+        shown = set(range(0, n, step)) | ({query} if query is not None else set())
+        if step > 1:
+            note = f"Every {step}th token is labelled; the CSV lists all {fmt.count(n, 'token')}."
+    else:
+        spare = (width - sum(widths)) / max(n - 1, 1) if n > 1 else 0.0
+        gap = min(max(spare, 0.05), 0.3)
+        centres = np.cumsum([0.0] + [w + gap for w in widths[:-1]]) + np.array(widths) / 2
+        shown = set(range(n))
+    mid = height * 0.5
+    box_h = 0.22
+    for i, (c, w) in enumerate(zip(centres, widths)):
         is_q = query is not None and i == query
         ax.add_patch(
             Rectangle(
-                (c - w / 2, -0.45),
+                (c - w / 2, mid - box_h / 2 if not upright else mid - 0.04),
                 w,
-                0.9,
-                facecolor="white",
+                box_h if not upright else 0.08,
+                facecolor="white" if not upright else ("#333333" if not is_q else ACCENT),
                 edgecolor=ACCENT if is_q else "#888888",
                 linewidth=1.4 if is_q else 0.5,
             )
         )
-        ax.text(
-            c, 0, label, ha="center", va="center", fontsize=fontsize, fontweight="bold" if is_q else "normal"
-        )
+        if i in shown and not upright:
+            ax.text(
+                c,
+                mid,
+                labels[i],
+                ha="center",
+                va="center",
+                fontsize=fontsize,
+                fontweight="bold" if is_q else "normal",
+            )
+        elif i in shown:
+            ax.text(
+                c,
+                mid + 0.08,
+                labels[i],
+                ha="center",
+                va="top",
+                fontsize=fontsize,
+                rotation=90,
+                fontweight="bold" if is_q else "normal",
+            )
+    reach = height * 0.5 - 0.3
     wmax = max((w for _, _, w in links), default=1.0)
     widest = max((abs(centres[q] - centres[k]) for q, k, _ in links), default=1.0) or 1.0
+    base_off = box_h / 2 if not upright else 0.04
     for q, k, w in sorted(links, key=lambda t: t[2]):
-        sign = 1.0 if k < q else -1.0
-        base = 0.45 * sign
-        rise = sign * (0.8 + 3.2 * abs(centres[q] - centres[k]) / widest)
+        sign = -1.0 if k < q else 1.0  # inches grow downwards: looking back draws upwards
+        if upright and sign > 0:
+            continue  # labels hang below the line: only the arcs above are drawn (see the caption)
+        base = mid + base_off * sign
+        rise = sign * (0.15 + (reach - 0.2) * abs(centres[q] - centres[k]) / widest)
         verts = [(centres[q], base), (centres[q], base + rise), (centres[k], base + rise), (centres[k], base)]
         codes = [MplPath.MOVETO, MplPath.CURVE4, MplPath.CURVE4, MplPath.CURVE4]
         alpha = 0.25 + 0.75 * w / wmax
@@ -287,17 +357,19 @@ def draw_arcs(
             )
         )
         ax.plot([centres[k]], [base], "o", color=(0.15, 0.15, 0.2, alpha), markersize=2 + 3 * w)
-    ax.set_xlim(-0.5, total + 0.5)
-    ax.set_ylim(-4.8, 4.8)
+    ax.set_xlim(0, width)
+    ax.set_ylim(height, 0)
     ax.axis("off")
-    ax.text(0, 4.6, "above the line: looks back", fontsize=fontsize * 0.75, color="#555555", va="top")
-    ax.text(0, -4.6, "below the line: looks ahead", fontsize=fontsize * 0.75, color="#555555", va="bottom")
-
-
-def _colour_bar(fig: Figure, image, ax, label: str, *, fraction: float, pad: float) -> None:
-    bar = fig.colorbar(image, ax=ax, fraction=fraction, pad=pad)
-    bar.set_label(label, fontsize=8)
-    bar.ax.tick_params(labelsize=7)
+    ax.text(0, 0.02, "above the line: looks back", fontsize=MIN_FONT, color="#555555", va="top")
+    if not upright:
+        ax.text(
+            0, height - 0.02, "below the line: looks ahead", fontsize=MIN_FONT, color="#555555", va="bottom"
+        )
+    elif any(k > q for q, k, _ in links):
+        note = (
+            note + " " if note else ""
+        ) + "Links that look ahead are listed in the CSV (labels hang below the line)."
+    return note
 
 
 # -- whole figures ---------------------------------------------------------------------------------
@@ -310,10 +382,14 @@ def matrix_figure(
     value_label: str = "weight",
 ) -> Figure:
     m = matrix.shape[0]
-    side = float(np.clip(0.16 * m + 2.2, 4.0, 9.0))
-    fig, cap = _figure(side + 1.0, side, caption)
-    ax = fig.add_axes((0.2, cap + 0.03, 0.62, 0.75 * (1 - cap)))
-    image = draw_matrix(ax, matrix, labels, query=query, fontsize=float(np.clip(11 - m / 8, 5, 9)))
+    side = float(np.clip(0.16 * m + 2.2, 4.0, 7.0))
+    fig, cap = _figure(side + 1.6, side + 1.2, caption)
+    w, h = fig.get_size_inches()
+    body = h * (1 - cap)
+    label_room = min(1.3, 0.1 + max(text_width(t, 8) for t in labels) if labels else 0.5)
+    size = min(w - label_room - 1.2, body - label_room - 0.2)
+    ax = fig.add_axes(((label_room + 0.05) / w, (h * cap + 0.15) / h, size / w, size / h))
+    image = draw_matrix(ax, matrix, labels, query=query, fontsize=float(np.clip(11 - m / 8, MIN_FONT, 9)))
     _colour_bar(fig, image, ax, value_label, fraction=0.04, pad=0.03)
     return fig
 
@@ -327,11 +403,12 @@ def mosaic_figure(
     selected: tuple[int, int] | None = None,
 ) -> Figure:
     L, H = attention.shape[:2]
-    width = float(np.clip(0.62 * H + 1.8, 5.0, 11.5))
+    width = float(np.clip(0.62 * H + 1.8, 5.0, 10.9))
     body = width * (L * 1.33) / (H + 1.8) + 0.4
     fig, cap = _figure(width, body, caption)
-    ax = fig.add_axes((0.07, cap + 0.02, 0.8, (1 - cap) * 0.92))
-    image = draw_mosaic(ax, attention, metric, per_head=per_head, selected=selected)
+    w, h = fig.get_size_inches()
+    ax = fig.add_axes((0.5 / w, cap + 0.1 / h, (w - 1.6) / w, (h * (1 - cap) - 0.45) / h))
+    image, _ = draw_mosaic(ax, attention, metric, per_head=per_head, selected=selected)
     label = "weight / head's largest weight" if per_head else "attention weight"
     _colour_bar(fig, image, ax, label, fraction=0.03, pad=0.02)
     return fig
@@ -345,35 +422,39 @@ def arcs_figure(
     *,
     query: int | None,
 ) -> Figure:
-    width = float(np.clip(sum(len(t) + 2.6 for t in labels) * 0.075 + 0.6, 5.0, 16.0))
-    fig, cap = _figure(width, 3.2, caption, ["Line width and darkness grow with the weight."])
-    ax = fig.add_axes((0.02, cap + 0.02, 0.96, (1 - cap) * 0.96))
-    draw_arcs(
-        ax, matrix, labels, links, query=query, fontsize=float(np.clip(120 / max(len(labels), 1), 5, 9))
+    fontsize = float(np.clip(120 / max(len(labels), 1), MIN_FONT, 9))
+    natural = sum(text_width(t, fontsize) + 0.2 for t in labels) + 0.4
+    width = float(np.clip(natural, 5.0, 10.9))
+    body = 3.2
+    probe = Page(width - 0.3, body)
+    note = draw_arcs(probe.ax, matrix, labels, links, query=query, fontsize=fontsize)
+    upright = (
+        sum(text_width(t, fontsize) + 0.1 for t in labels) + 0.05 * max(len(labels) - 1, 0) > width - 0.3
     )
+    extra = ["Line width and darkness grow with the weight."] + ([note] if note else [])
+    fig, cap = _figure(width, body + (1.2 if upright else 0.0), caption, extra)
+    w, h = fig.get_size_inches()
+    ax = fig.add_axes((0.15 / w, cap + 0.05 / h, (w - 0.3) / w, (h * (1 - cap) - 0.1) / h))
+    draw_arcs(ax, matrix, labels, links, query=query, fontsize=fontsize)
     return fig
-
-
-def chars_across(width_in: float, fontsize: float) -> float:
-    """How many average characters of ``fontsize`` points fit in ``width_in`` inches (approximate)."""
-    return width_in * 72.0 / (0.6 * fontsize)
 
 
 def relevance_figure(values: np.ndarray, labels: Sequence[str], caption: Caption) -> Figure:
     width, fontsize = 8.0, 9.0
     ax_w = width - 0.4
-    chars = chars_across(ax_w, fontsize)
-    lines = chip_layout(labels, chars)[-1][1] + 1 if labels else 1
-    chips_h, bar_band = 0.42 * lines + 0.1, 0.6
-    body = chips_h + bar_band
-    fig, cap = _figure(width, body, caption)
+    lines = relevance_lines(labels, values, ax_w, fontsize)
+    chips_h = LINE_PITCH * lines + 0.05
+    bar_band = 0.75
+    fig, cap = _figure(width, chips_h + bar_band, caption)
     total = fig.get_figheight()
-    ax = fig.add_axes((0.2 / width, (total - chips_h - 0.05) / total, ax_w / width, chips_h / total))
-    mappable = draw_relevance(ax, values, labels, width_chars=chars, fontsize=fontsize)
-    cax = fig.add_axes((0.3, (total - body + 0.3) / total, 0.4, 0.09 / total))
+    body = total * (1 - cap)
+    chips_h = min(chips_h, body - bar_band)
+    ax = fig.add_axes((0.2 / width, (total - chips_h - 0.1) / total, ax_w / width, chips_h / total))
+    mappable = draw_relevance(ax, values, labels, fontsize=fontsize)
+    cax = fig.add_axes((0.3, (total * cap + 0.2) / total, 0.4, 0.1 / total))
     fig.colorbar(mappable, cax=cax, orientation="horizontal")
-    cax.tick_params(labelsize=6)
-    cax.set_title("relevance", fontsize=7, pad=2)
+    cax.tick_params(labelsize=MIN_FONT)
+    cax.set_title("relevance", fontsize=MIN_FONT, pad=2)
     return fig
 
 
@@ -391,44 +472,54 @@ def sheet_figure(
     focus_title: str,
     relevance_title: str,
     query: int | None = None,
+    paper: str = DEFAULT_PAPER,
 ) -> Figure:
-    """One A4 landscape page: head mosaic, close-up and relevance band, with the caption and caution."""
-    fig, cap = _figure(11.69, 8.27 - 1.0, caption, [CAUTION])
-    fig.set_size_inches(11.69, 8.27)
-    top = 0.88
-    fig.text(0.05, 0.965, "Head mosaic", fontsize=11, va="top")
-    fig.text(0.545, 0.965, focus_title, fontsize=11, va="top")
-    gs = fig.add_gridspec(
-        2,
-        2,
-        left=0.05,
-        right=0.96,
-        bottom=cap + 0.04,
-        top=top,
-        height_ratios=[4.2, 1.0],
-        width_ratios=[1.15, 1.0],
-        hspace=0.25,
-        wspace=0.28,
+    """One landscape page: head mosaic, close-up and relevance band, with the prediction, caption and caution."""
+    page = Page.paper(paper, True)
+    H = page.height
+    inner = page.inner_width
+    # header: title, sentence, prediction
+    y = page.lines(MARGIN, MARGIN, ["Figure sheet"], TITLE_FONT, weight="bold")
+    y = page.paragraph(MARGIN, y, f"\u201c{caption.sentence}\u201d", inner, 9.0)
+    line = prediction_line(
+        caption.predicted, caption.probability, caption.expected, caption.expected_probability
     )
-    ax_grid = fig.add_subplot(gs[0, 0])
-    image = draw_mosaic(ax_grid, attention, metric, per_head=per_head, selected=selected, fontsize=6)
-    fig.colorbar(image, ax=ax_grid, fraction=0.035, pad=0.02).ax.tick_params(labelsize=6)
-    ax_focus = fig.add_subplot(gs[0, 1])
-    m = matrix.shape[0]
-    image = draw_matrix(
-        ax_focus, matrix, matrix_labels, query=query, fontsize=float(np.clip(10 - m / 8, 4, 8))
-    )
-    fig.colorbar(image, ax=ax_focus, fraction=0.04, pad=0.03).ax.tick_params(labelsize=6)
-    ax_rel = fig.add_subplot(gs[1, :])
+    y = page.lines(MARGIN, y + 0.02, [line], 8.5) + 0.12
+    # footer: caption and caution
+    lines = caption.lines(inner, CAPTION_FONT) + wrap(f"Caution: {CAUTION}", inner, CAPTION_FONT)
+    foot = H - MARGIN - len(lines) * line_height(CAPTION_FONT)
+    page.rule(MARGIN, foot - 0.06, inner)
+    page.lines(MARGIN, foot, lines, CAPTION_FONT, color=palette.DIM_INK)
+    # relevance band: as tall as its chips need
+    band_font = 8.0
+    n_lines = relevance_lines(relevance_labels, relevance, inner, band_font) if relevance is not None else 1
+    band_h = LINE_PITCH * n_lines + 0.05
+    band_top = foot - 0.2 - band_h - 0.28
+    page.text(MARGIN, band_top, relevance_title, 9.5, weight="bold")
     if relevance is not None:
         draw_relevance(
-            ax_rel, relevance, relevance_labels, width_chars=chars_across(10.6, 8), fontsize=8, min_lines=3
+            page.axes(MARGIN, band_top + 0.28, inner, band_h), relevance, relevance_labels, fontsize=band_font
         )
     else:
-        ax_rel.axis("off")
-        ax_rel.text(0.5, 0.5, "relevance not available", ha="center", va="center", transform=ax_rel.transAxes)
-    ax_rel.set_title(relevance_title, fontsize=10, loc="left")
-    return fig
+        page.text(MARGIN, band_top + 0.3, "relevance not available", 8.0)
+    # middle: mosaic (left) and close-up (right), titles above, nothing on top of the close-up's axis
+    mid_top, mid_bottom = y, band_top - 0.25
+    left_w = inner * 0.54
+    page.text(MARGIN, mid_top, "Head mosaic", 9.5, weight="bold")
+    mosaic_ax = page.axes(MARGIN + 0.35, mid_top + 0.45, left_w - 0.95, mid_bottom - mid_top - 0.5)
+    image, _ = draw_mosaic(mosaic_ax, attention, metric, per_head=per_head, selected=selected)
+    _colour_bar(page.fig, image, mosaic_ax, "", fraction=0.035, pad=0.02)
+    right_x = MARGIN + left_w + 0.15
+    right_w = inner - left_w - 0.15
+    page.text(right_x, mid_top, focus_title, 9.5, weight="bold")
+    m = matrix.shape[0]
+    fs = float(np.clip(10 - m / 8, MIN_FONT, 8))
+    label_room = min(1.1, 0.1 + max((text_width(t, fs) for t in matrix_labels), default=0.4))
+    side = min(right_w - label_room - 0.9, mid_bottom - mid_top - 0.45 - label_room - 0.25)
+    focus_ax = page.axes(right_x + label_room + 0.2, mid_top + 0.35, side, side)
+    image = draw_matrix(focus_ax, matrix, matrix_labels, query=query, fontsize=fs, ticks_on_top=False)
+    _colour_bar(page.fig, image, focus_ax, "", fraction=0.04, pad=0.03)
+    return page.fig
 
 
 # -- tables ----------------------------------------------------------------------------------------
@@ -465,29 +556,26 @@ def relevance_table(values: np.ndarray, labels: Sequence[str]) -> Table:
 
 
 # -- writing ---------------------------------------------------------------------------------------
-def figure_format(path: Path) -> str:
-    kind = FORMATS.get(Path(path).suffix.lower())
-    if kind is None:
-        raise HeadcountError(f"{path}: unknown figure format (use {', '.join(FORMATS)})")
-    return kind
+def with_sentence(table: Table, text: str, predicted: str | None, expected: str | None) -> Table:
+    """``table`` with the sentence and its labels on every row (columns ``text``, ``predicted``, ``expected``)."""
+    header, rows = table
+    tail = [text, predicted or "", expected or ""]
+    return [*header, "text", "predicted", "expected"], [[*row, *tail] for row in rows]
 
 
 def save_figure(fig: Figure, path: Path) -> Path:
     """Write ``fig`` as PNG, SVG or PDF (by suffix), atomically; text stays text in SVG and PDF."""
-    kind = figure_format(path)
-    with rc_context({"svg.fonttype": "none", "pdf.fonttype": 42}):
-        return atomic_write(
-            Path(path), lambda fh: fig.savefig(fh, format=kind, dpi=PNG_DPI, facecolor="white")
-        )
+    return save_pages(fig, Path(path))[0]
 
 
 def csv_path(path: Path) -> Path:
     return Path(path).with_suffix(".csv")
 
 
-def export_figure(fig: Figure, table: Table | None, path: Path) -> list[Path]:
-    """Write the figure and, beside it, its numbers as CSV; returns the written paths."""
-    written = [save_figure(fig, path)]
+def export_figure(fig: Figure | Sequence[Figure], table: Table | None, path: Path) -> list[Path]:
+    """Write the figure (or every page) and, beside it, its numbers as CSV; returns the written paths."""
+    figure_format(path)
+    written = save_pages(fig, Path(path))
     if table is not None:
         header, rows = table
         written.append(save_csv(csv_path(path), header, rows))

@@ -82,6 +82,7 @@ from ui.corpus.state import (
     with_choice,
     with_threshold,
 )
+from ui.widgets.export import last_folder, remember_folder
 from ui.widgets.legend import ColourKey
 from ui.widgets.mask_files import MaskFiles
 from ui.widgets.matrix_map import MatrixMap
@@ -518,7 +519,7 @@ class CorpusPage(QWidget):
             check.setChecked(False)
 
     def choose_file(self) -> None:
-        start = self.path_edit.text() or str(self.settings.value("corpus/data_folder", str(Path.home())))
+        start = self.path_edit.text() or str(last_folder(self.settings))
         path, _ = QFileDialog.getOpenFileName(
             self,
             "Choose a labelled evaluation set",
@@ -526,7 +527,7 @@ class CorpusPage(QWidget):
             "Labelled sets (*.csv *.jsonl *.ndjson);;All files (*)",
         )
         if path:
-            self.settings.setValue("corpus/data_folder", str(Path(path).parent))
+            remember_folder(self.settings, Path(path))
             self.path_edit.setText(path)
 
     # -- running -----------------------------------------------------------------------------------
@@ -936,10 +937,10 @@ class CorpusPage(QWidget):
         if self.report is None:
             self.error.emit("Nothing to export yet: run the corpus analysis first")
             return
-        start = str(self.settings.value("corpus/report_folder", str(Path.home())))
+        start = str(last_folder(self.settings))
         folder = QFileDialog.getExistingDirectory(self, "Write the corpus report into a folder", start)
         if folder:
-            self.settings.setValue("corpus/report_folder", folder)
+            remember_folder(self.settings, Path(folder))
             self.export_report(Path(folder))
 
     def export_report(self, folder: Path) -> int:
@@ -964,9 +965,10 @@ class CorpusPage(QWidget):
         if self.report is None or self.report.pruning is None:
             self.error.emit("No set of heads to save: run the corpus analysis with a pruning order first")
             return
-        start = Path(str(self.settings.value("corpus/report_folder", str(Path.home())))) / "prune_mask.json"
+        start = last_folder(self.settings) / "prune_mask.json"
         path, _ = QFileDialog.getSaveFileName(self, "Save the heads to remove", str(start), "JSON (*.json)")
         if path:
+            remember_folder(self.settings, Path(path))
             self.save_mask(Path(path))
 
     def save_mask(self, path: Path) -> Path:

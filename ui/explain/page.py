@@ -36,7 +36,8 @@ from inspector.errors import HeadcountError
 from inspector.explanation.explain import CAUTION, require_classifier
 from inspector.explanation.gradients import BASELINES
 from inspector.explanation.occlusion import OCCLUSION_MODES
-from inspector.figures.explanation import explanation_figure
+from inspector.figures.explanation import explanation_pages
+from inspector.figures.paper import DEFAULT_PAPER
 from inspector.formatting import count
 from ui.explain.panels import AgreementPanel, HeadsPanel, SentenceSide, combo
 from ui.explain.state import (
@@ -48,7 +49,7 @@ from ui.explain.state import (
     compute_explanation,
 )
 from ui.sentence.bar import NO_EXPECTATION
-from ui.widgets.export import ExportController, ExportJob, slug
+from ui.widgets.export import ExportController, ExportJob, file_stem
 from ui.widgets.legend import ColourKey
 from ui.widgets.panel import buddy_label, column, control_grid
 from ui.widgets.signed import SignKey
@@ -67,14 +68,17 @@ NO_EDIT_NOTE = (
 )
 
 
-def explanation_export(state: ExplainState) -> ExportJob:
-    """Snapshot the page for export: the explanation figure, and every word's numbers as CSV."""
+def explanation_export(state: ExplainState, paper: str = DEFAULT_PAPER) -> ExportJob:
+    """Snapshot the page for export: the explanation pages (drawn as the page draws them: word rows, method
+    columns), and every word's numbers with the sentence and its labels as CSV."""
     if not state.ready:
         raise ValueError("nothing to export: no sentence explained yet")
     ex, cmp = state.explanation, state.comparison
     table = state.csv_table()
-    stem = f"{slug(ex.model_name, 20)}-{slug(ex.text)}-explained"
-    return ExportJob("explain", lambda: explanation_figure(ex, cmp), lambda: table, stem)
+    stem = file_stem(ex.model_name, ex.text, "explained")
+    return ExportJob(
+        "explain", lambda: explanation_pages(ex, cmp, paper=paper), lambda: table, stem, "the explanation"
+    )
 
 
 class ExplainPage(QWidget):
@@ -425,7 +429,7 @@ class ExplainPage(QWidget):
         if self._exporter is None:
             return
         try:
-            job = explanation_export(self.state)
+            job = explanation_export(self.state, self._exporter.paper())
         except ValueError as exc:
             self._exporter.failed.emit(str(exc))
             return
