@@ -64,29 +64,42 @@ def test_tables_hold_the_numbers():
     assert rows[1] == [1, "ferry", 0.25]
 
 
-def test_caption_names_model_sentence_view_metric_and_scale():
-    """The caption carries model, sentence, view with layer/head, metric and colour scale.
+def test_caption_names_everything_a_reader_needs():
+    """The caption carries model, sentence, predicted label with probability, expected label, misfire mark,
+    view, layer/head, metric, colour scale and settings, each once, with no doubled parentheses.
 
-    Reference: the issue's caption list (model, sentence, view, layer/head, metric, colour scale).
+    Reference: the issue's caption list (model, sentence, predicted label with probability, expected label,
+    misfire mark, view, layer/head, metric, colour scale, the method's settings).
     """
     cap = figures.Caption(
         "ferry_intents",
         "is the 9am sailing on time",
-        "Close-up",
+        "Figure sheet (mosaic, close-up, relevance)",
         "L2H5",
         "Entropy (nats)",
-        "0 to the largest value",
-    )
-    text = cap.text()
-    for part in (
-        "ferry_intents",
-        "is the 9am sailing on time",
-        "Close-up",
-        "L2H5",
-        "Entropy",
         "cividis, 0 to the largest value",
+        predicted="timetable",
+        probability=0.913,
+        expected="disruption_status",
+        expected_probability=0.052,
+        settings="every link \u2265 0.25",
+    )
+    text = " ".join(cap.text(width=6.0).split())
+    for part in (
+        "Model: ferry_intents",
+        "\u201cis the 9am sailing on time\u201d",
+        "Predicted: timetable 91.3%",
+        "expected: disruption_status 5.2%",
+        "\u2715 misfire",
+        "View: Figure sheet (mosaic, close-up, relevance); L2H5",
+        "Metric: Entropy (nats)",
+        "Colour: cividis, 0 to the largest value",
+        "Settings: every link \u2265 0.25",
     ):
-        assert part in text
+        assert part in text, part
+    assert "))" not in text and text.count("ferry_intents") == 1
+    same = figures.Caption("m", "s", "v", predicted="timetable", probability=0.9, expected="timetable")
+    assert "\u2713 as expected" in same.text() and "misfire" not in same.text()
 
 
 @pytest.mark.parametrize("suffix", [".png", ".svg", ".pdf"])

@@ -138,14 +138,14 @@ def test_failed_export_leaves_no_partial_file(page, tmp_path, monkeypatch):
 
     Reference: write-to-temporary-then-rename (POSIX rename(2) atomicity); common practice, no source.
     """
+    import inspector.figures.files as files
     from ui.sentence.export import build_export
     from ui.widgets.export import run_export
 
-    def broken_savefig(self, fh, **kwargs):
-        fh.write(b"%PDF-1.4 half a figure")
-        raise OSError("disk full")
+    def broken_fsync(fd):
+        raise OSError("disk full")  # the bytes were written to the temporary file, then the disk gave out
 
-    monkeypatch.setattr(Figure, "savefig", broken_savefig)
+    monkeypatch.setattr(files.os, "fsync", broken_fsync)
     target = tmp_path / "out" / "closeup.pdf"
     with pytest.raises(OSError, match="disk full"):
         run_export(build_export(page, "closeup"), target)

@@ -219,13 +219,13 @@ def write_report(report: CorpusReport, folder: str | Path, *, figures: bool = Tr
         written["prune_mask"] = [save_json(folder / PRUNE_MASK, report.pruning.mask)]
     if figures:
         made = {
-            "confusion": plots.confusion_figure(report.evaluation),
-            "similarity": plots.similarity_figure(report.redundancy),
+            "confusion": plots.confusion_figure(report.evaluation, report.model_name),
+            "similarity": plots.similarity_figure(report.redundancy, report.model_name),
         }
         if report.importance is not None:
-            made["importance"] = plots.importance_figure(report.importance)
+            made["importance"] = plots.importance_figure(report.importance, report.model_name)
         if report.pruning is not None:
-            made["pruning"] = plots.pruning_figure(report.pruning)
+            made["pruning"] = plots.pruning_figure(report.pruning, report.model_name)
         for key, fig in made.items():
             written[f"figure_{key}"] = plots.save_figure(fig, folder / FIGURES[key])
     return written

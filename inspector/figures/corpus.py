@@ -8,11 +8,9 @@ worker thread.
 
 from __future__ import annotations
 
-import io
 from pathlib import Path
 
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter
 
@@ -23,8 +21,10 @@ from inspector.corpus.pruning import PruningResult
 from inspector.corpus.redundancy import Redundancy
 from inspector.corpus.run import Evaluation
 from inspector.figures.files import atomic_write
+from inspector.figures.paper import MIN_FONT, Page, fit_size, line_height, text_width, tick_step, wrap
 
 FIGURE_FORMATS: tuple[str, ...] = ("png", "svg")
+CAPTION_FONT = 7.5
 _ANNOTATE_UP_TO = 20
 ORDER_STYLES: tuple[tuple[str, str, str], ...] = (
     ("-", "o", palette.INK),
@@ -35,34 +35,81 @@ ORDER_STYLES: tuple[tuple[str, str, str], ...] = (
 
 
 def _figure(width: float, height: float) -> Figure:
-    fig = Figure(figsize=(width, height), dpi=110)
-    FigureCanvasAgg(fig)
-    return fig
+    width, height = fit_size(width, height)
+    return Page(width, height).fig
 
 
-def _caption(fig: Figure, text: str) -> None:
-    fig.text(0.01, 0.01, text, fontsize=7.5, ha="left", va="bottom", wrap=True, color="0.25")
+def _caption(fig: Figure, text: str, top: float) -> None:
+    """``text`` wrapped under the body, from ``top`` inches below the figure's top edge."""
+    w, h = fig.get_size_inches()
+    lines = wrap(text, w - 0.3, CAPTION_FONT)
+    for k, line in enumerate(lines):
+        fig.text(
+            0.15 / w,
+            1 - (top + k * line_height(CAPTION_FONT)) / h,
+            line,
+            fontsize=CAPTION_FONT,
+            ha="left",
+            va="top",
+            color=palette.DIM_INK,
+        )
+
+
+def _caption_height(text: str, width: float) -> float:
+    return 0.15 + len(wrap(text, width - 0.3, CAPTION_FONT)) * line_height(CAPTION_FONT)
+
+
+def _axes(fig: Figure, x: float, y: float, w: float, h: float):
+    """An axes at (x, y, w, h) inches from the figure's top-left corner."""
+    fw, fh = fig.get_size_inches()
+    return fig.add_axes((x / fw, 1 - (y + h) / fh, w / fw, h / fh))
+
+
+def _model(model: str) -> str:
+    return f"Model {model}. " if model else ""
 
 
 PERCENT_TICKS = FuncFormatter(lambda value, _pos: fmt.percent(value, 0))
 """Axis ticks of a fraction, written as whole percentages (``80%``)."""
 
 
-def confusion_figure(evaluation: Evaluation) -> Figure:
-    """Confusion matrix: rows gold labels, columns predictions; colour = share of the gold row."""
+def _bar(fig: Figure, image, x: float, y: float, h: float, label: str):
+    cax = _axes(fig, x, y, 0.14, h)
+    bar = fig.colorbar(image, cax=cax)
+    bar.set_label(label, fontsize=MIN_FONT + 0.5)
+    bar.ax.tick_params(labelsize=MIN_FONT)
+    return bar
+
+
+def confusion_figure(evaluation: Evaluation, model: str = "") -> Figure:
+    """Confusion matrix: rows expected labels, columns predictions; colour = share of the expected label's
+    row on the sequential map, the count printed in each non-empty cell."""
     cm = evaluation.confusion
     n = len(evaluation.labels)
-    side = max(4.5, 0.45 * n + 2.5)
-    fig = _figure(side + 1.0, side)
-    ax = fig.add_axes((0.28, 0.26, 0.62, 0.66))
+    names = list(evaluation.labels)
+    label_room = min(1.7, 0.15 + max((text_width(t, MIN_FONT) for t in names), default=0.5))
+    side = float(np.clip(0.34 * n + 1.0, 3.0, 8.27 - label_room - 1.4))
+    caption = (
+        f"{_model(model)}{fmt.count(evaluation.total, 'utterance')}. Rows: the expected label; columns: the "
+        f"prediction; the number in a cell is a count of utterances; its colour ({palette.SEQUENTIAL_TEXT}) is "
+        "that count's share of the row."
+    )
+    width = label_room + side + 1.3
+    cap_h = _caption_height(caption, width)
+    height = 0.5 + side + label_room + 0.35 + cap_h
+    fig = _figure(width, height)
+    ax = _axes(fig, label_room + 0.05, 0.5, side, side)
     share = cm / np.maximum(cm.sum(1, keepdims=True), 1)
     cmap = palette.sequential_map()
     im = ax.imshow(share, cmap=cmap, vmin=0, vmax=1)
-    ax.set_xticks(range(n), evaluation.labels, rotation=60, ha="right", fontsize=8)
-    ax.set_yticks(range(n), evaluation.labels, fontsize=8)
-    ax.set_xlabel("predicted intent")
-    ax.set_ylabel("gold intent")
-    if n <= _ANNOTATE_UP_TO:
+    step = tick_step(n, side, MIN_FONT)
+    ticks = list(range(0, n, step))
+    ax.set_xticks(ticks, [names[i] for i in ticks], rotation=90, fontsize=MIN_FONT)
+    ax.set_yticks(ticks, [names[i] for i in ticks], fontsize=MIN_FONT)
+    ax.set_xlabel("predicted label", fontsize=MIN_FONT + 1)
+    ax.set_ylabel("expected label", fontsize=MIN_FONT + 1)
+    cell = side / max(n, 1)
+    if n <= _ANNOTATE_UP_TO and text_width(str(int(cm.max())), MIN_FONT) < 0.9 * cell:
         for i in range(n):
             for j in range(n):
                 if cm[i, j]:
@@ -72,92 +119,143 @@ def confusion_figure(evaluation: Evaluation) -> Figure:
                         str(cm[i, j]),
                         ha="center",
                         va="center",
-                        fontsize=7,
+                        fontsize=MIN_FONT,
                         color=palette.text_on(cmap(float(share[i, j]))),
                     )
-    bar = fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03, label="share of the gold row")
+    bar = _bar(fig, im, label_room + side + 0.25, 0.5, side, "share of the expected label's row")
     bar.ax.yaxis.set_major_formatter(PERCENT_TICKS)
-    ax.set_title(
+    fig.text(
+        0.15 / width,
+        1 - 0.12 / height,
         f"Accuracy {fmt.percent(evaluation.accuracy)}   macro-F1 {fmt.percent(evaluation.macro_f1)}",
         fontsize=10,
+        va="top",
+        ha="left",
     )
-    _caption(fig, f"{fmt.count(evaluation.total, 'utterance')}; numbers are counts.")
+    _caption(fig, caption, 0.5 + side + label_room + 0.35)
     return fig
 
 
-def _head_grid(ax, values: np.ndarray, decimals: int) -> object:
+def _head_grid(ax, values: np.ndarray, decimals: int, cell: float) -> object:
     layers, heads = values.shape
     cmap = palette.sequential_map()
     top = float(np.nanmax(values)) if values.size else 0.0
     im = ax.imshow(values, cmap=cmap, aspect="auto", vmin=0.0, vmax=top or 1.0)
-    ax.set_xticks(range(heads), [fmt.head_tick(h) for h in range(heads)])
-    ax.set_yticks(range(layers), [fmt.layer_name(l) for l in range(layers)])
-    ax.set_xlabel("head")
-    ax.set_ylabel("layer")
-    if layers * heads <= 16 * 16:
+    xs = tick_step(heads, cell * heads, MIN_FONT, pitch=2.4)
+    ys = tick_step(layers, cell * layers, MIN_FONT)
+    ax.set_xticks(range(0, heads, xs), [fmt.head_tick(h) for h in range(0, heads, xs)], fontsize=MIN_FONT)
+    ax.set_yticks(range(0, layers, ys), [fmt.layer_name(l) for l in range(0, layers, ys)], fontsize=MIN_FONT)
+    ax.set_xlabel("head", fontsize=MIN_FONT + 1)
+    ax.set_ylabel("layer", fontsize=MIN_FONT + 1)
+    texts = [fmt.weight(v, decimals) for v in values.ravel()]
+    if texts and max(text_width(t, MIN_FONT) for t in texts) < 0.92 * cell:
         for l in range(layers):
             for h in range(heads):
                 ax.text(
                     h,
                     l,
-                    fmt.weight(values[l, h], decimals),
+                    texts[l * heads + h],
                     ha="center",
                     va="center",
-                    fontsize=7,
+                    fontsize=MIN_FONT,
                     color=palette.text_on(cmap(float(values[l, h]) / (top or 1.0))),
                 )
     return im
 
 
-def importance_figure(importance: HeadImportance) -> Figure:
-    """Heat map of layer-normalised head importance [layers x heads]."""
+def importance_figure(importance: HeadImportance, model: str = "") -> Figure:
+    """Heat map of layer-normalised head importance [layers x heads], the value printed in each cell."""
     layers, heads = importance.normalized.shape
-    fig = _figure(max(5.0, 0.55 * heads + 2.5), max(3.2, 0.45 * layers + 1.8))
-    ax = fig.add_axes((0.1, 0.2, 0.75, 0.7))
-    im = _head_grid(ax, importance.normalized, 2)
-    fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03, label="importance (l2-normalised per layer)")
-    ax.set_title("Head importance: mean |dL/d gate| over the set", fontsize=10)
-    _caption(
-        fig,
-        f"Michel et al. (2019) gate-gradient importance, {fmt.count(importance.count, 'utterance')}; "
-        "layers and heads count from 0.",
+    cell = float(np.clip(6.2 / max(heads, layers * 0.8), 0.22, 0.5))
+    caption = (
+        f"{_model(model)}Michel et al. (2019) gate-gradient importance over "
+        f"{fmt.count(importance.count, 'utterance')}, l2-normalised within each layer; layers and heads count "
+        f"from 0. Colour: {palette.SEQUENTIAL_TEXT}, 0 to the largest head."
     )
+    width = 0.8 + cell * heads + 1.3
+    cap_h = _caption_height(caption, width)
+    height = 0.55 + cell * layers + 0.55 + cap_h
+    fig = _figure(width, height)
+    ax = _axes(fig, 0.7, 0.55, cell * heads, cell * layers)
+    im = _head_grid(ax, importance.normalized, 2, cell)
+    _bar(fig, im, 0.7 + cell * heads + 0.15, 0.55, cell * layers, "importance")
+    fig.text(
+        0.15 / width,
+        1 - 0.12 / height,
+        "Head importance: mean |dL/d gate| over the set",
+        fontsize=10,
+        va="top",
+    )
+    _caption(fig, caption, 0.55 + cell * layers + 0.5)
     return fig
 
 
-def similarity_figure(redundancy: Redundancy) -> Figure:
-    """Head-by-head similarity ``1 - mean JS (bits)``, heads ordered layer by layer."""
+def similarity_figure(redundancy: Redundancy, model: str = "") -> Figure:
+    """Head-by-head similarity ``1 - mean JS (bits)``, heads ordered layer by layer, near-duplicates framed."""
+    from matplotlib.patches import Rectangle
+
     sim = redundancy.similarity
     k, heads = len(sim), redundancy.num_heads
-    side = min(11.0, max(5.0, 0.09 * k + 3.0))
-    fig = _figure(side + 1.2, side)
-    ax = fig.add_axes((0.1, 0.12, 0.75, 0.8))
+    side = 5.6
+    caption = (
+        f"{_model(model)}Similarity = 1 \u2212 mean Jensen-Shannon divergence between two heads' attention rows "
+        f"(bits). Within each layer block heads run {fmt.head_tick(0)}..{fmt.head_tick(heads - 1)}; framed: "
+        f"near-duplicate groups (complete linkage at {fmt.bits(redundancy.threshold)}); "
+        f"{redundancy.rows_compared} of {fmt.count(redundancy.rows_total, 'query row')} compared. Colour: "
+        f"{palette.SEQUENTIAL_TEXT}, from the least similar pair to identical."
+    )
+    width = 0.6 + side + 1.4
+    cap_h = _caption_height(caption, width)
+    height = 0.55 + side + 0.45 + cap_h
+    fig = _figure(width, height)
+    ax = _axes(fig, 0.55, 0.55, side, side)
     off = sim[~np.eye(k, dtype=bool)] if k > 1 else np.ones(1)
     im = ax.imshow(sim, cmap=palette.sequential_map(), vmin=float(off.min()), vmax=1.0)
-    centres = [l * heads + (heads - 1) / 2 for l in range(redundancy.num_layers)]
-    names = [fmt.layer_name(l) for l in range(redundancy.num_layers)]
-    ax.set_xticks(centres, names)
-    ax.set_yticks(centres, names)
-    for l in range(1, redundancy.num_layers):
+    layers = redundancy.num_layers
+    step = tick_step(layers, side, MIN_FONT)
+    centres = [l * heads + (heads - 1) / 2 for l in range(0, layers, step)]
+    names = [fmt.layer_name(l) for l in range(0, layers, step)]
+    ax.set_xticks(centres, names, fontsize=MIN_FONT)
+    ax.set_yticks(centres, names, fontsize=MIN_FONT)
+    for l in range(1, layers):
         ax.axhline(l * heads - 0.5, color="white", lw=0.6)
         ax.axvline(l * heads - 0.5, color="white", lw=0.6)
-    fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03, label="1 - mean Jensen-Shannon divergence (bits)")
-    ax.set_title(
-        f"Head similarity ({fmt.count(len(redundancy.groups), 'near-duplicate group')})", fontsize=10
+    for group in redundancy.groups:
+        for a in group:
+            for b in group:
+                if a != b:
+                    i, j = a[0] * heads + a[1], b[0] * heads + b[1]
+                    ax.add_patch(
+                        Rectangle((j - 0.5, i - 0.5), 1, 1, fill=False, edgecolor=palette.INK, lw=0.8)
+                    )
+    _bar(fig, im, 0.55 + side + 0.15, 0.55, side, "1 \u2212 mean JS divergence (bits)")
+    fig.text(
+        0.15 / width,
+        1 - 0.12 / height,
+        f"Head similarity ({fmt.count(len(redundancy.groups), 'near-duplicate group')})",
+        fontsize=10,
+        va="top",
     )
-    _caption(
-        fig,
-        f"Within each layer block heads run {fmt.head_tick(0)}..{fmt.head_tick(heads - 1)}. Groups: complete "
-        f"linkage at {fmt.bits(redundancy.threshold)}; {redundancy.rows_compared} of "
-        f"{fmt.count(redundancy.rows_total, 'query row')} compared.",
-    )
+    _caption(fig, caption, 0.55 + side + 0.4)
     return fig
 
 
-def pruning_figure(pruning: PruningResult) -> Figure:
-    """Accuracy against the fraction of heads switched off, one line per order."""
-    fig = _figure(6.8, 4.6)
-    ax = fig.add_axes((0.11, 0.24, 0.85, 0.66))
+def pruning_figure(pruning: PruningResult, model: str = "") -> Figure:
+    """Accuracy against the share of heads switched off, one grey line per order; the exported mask in the accent."""
+    n = pruning.curves[0].utterances
+    caption = (
+        f"{_model(model)}{pruning.caution} Heads switched off by gates on {fmt.count(n, 'utterance')}"
+        + (
+            f", measured every {fmt.count(pruning.every, 'head')}."
+            if pruning.every > 1
+            else ", one head per step."
+        )
+    )
+    width = 6.8
+    cap_h = _caption_height(caption, width)
+    height = 0.45 + 3.6 + 0.55 + cap_h
+    fig = _figure(width, height)
+    ax = _axes(fig, 0.75, 0.45, width - 1.0, 3.6)
     for i, curve in enumerate(pruning.curves):
         dash, marker, grey = ORDER_STYLES[i % len(ORDER_STYLES)]
         ax.plot(
@@ -190,34 +288,28 @@ def pruning_figure(pruning: PruningResult) -> Figure:
             ls="none",
             label=f"exported: {fmt.count(len(pruning.removed), 'head')} ({pruning.mask_order})",
         )
-    ax.set_xlabel("share of heads switched off")
-    ax.set_ylabel("accuracy")
+    ax.set_xlabel("share of heads switched off", fontsize=MIN_FONT + 1)
+    ax.set_ylabel("accuracy", fontsize=MIN_FONT + 1)
     ax.xaxis.set_major_formatter(PERCENT_TICKS)
     ax.yaxis.set_major_formatter(PERCENT_TICKS)
+    ax.tick_params(labelsize=MIN_FONT)
     ax.set_xlim(0, 1)
     ax.set_ylim(0, 1.02)
+    ax.set_xticks(np.linspace(0, 1, 6))
+    ax.set_yticks(np.linspace(0, 1, 6))
     ax.grid(alpha=0.3)
-    ax.legend(fontsize=8, loc="lower left")
-    ax.set_title("Pruning simulation (no retraining)", fontsize=10)
-    n = pruning.curves[0].utterances
-    _caption(
-        fig,
-        f"{pruning.caution} Heads switched off by gates on {fmt.count(n, 'utterance')}"
-        + (
-            f", measured every {fmt.count(pruning.every, 'head')}."
-            if pruning.every > 1
-            else ", one head per step."
-        ),
-    )
+    ax.legend(fontsize=MIN_FONT, loc="lower left")
+    fig.text(0.15 / width, 1 - 0.1 / height, "Pruning simulation (no retraining)", fontsize=10, va="top")
+    _caption(fig, caption, 0.45 + 3.6 + 0.5)
     return fig
 
 
 def save_figure(fig: Figure, stem: Path) -> list[Path]:
-    """Write ``stem.png`` and ``stem.svg`` atomically; returns the paths."""
+    """Write ``stem.png`` and ``stem.svg`` atomically (the figure's own paper-fitting size); returns the paths."""
+    from inspector.figures.pages import figure_bytes
+
     paths = []
     for kind in FIGURE_FORMATS:
-        buf = io.BytesIO()
-        fig.savefig(buf, format=kind, bbox_inches="tight", pad_inches=0.15)
-        data = buf.getvalue()
+        data = figure_bytes(fig, kind)
         paths.append(atomic_write(stem.with_suffix(f".{kind}"), lambda fh, d=data: fh.write(d)))
     return paths

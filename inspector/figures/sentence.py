@@ -84,9 +84,15 @@ def _cmap():
 
 
 def _colour_bar(fig: Figure, image, ax, label: str, *, fraction: float, pad: float) -> None:
+    """A colour bar beside ``ax`` with as many ticks as fit its height at the smallest font."""
+    from matplotlib.ticker import MaxNLocator
+
     bar = fig.colorbar(image, ax=ax, fraction=fraction, pad=pad)
-    bar.set_label(label, fontsize=MIN_FONT + 1)
+    if label:
+        bar.set_label(label, fontsize=MIN_FONT + 1)
     bar.ax.tick_params(labelsize=MIN_FONT)
+    _, height = _axes_inches(bar.ax)
+    bar.ax.yaxis.set_major_locator(MaxNLocator(nbins=max(1, int(height * 72 / (MIN_FONT * 2.6)))))
 
 
 def _axes_inches(ax) -> tuple[float, float]:
@@ -226,26 +232,37 @@ def chip_layout(
     return out
 
 
-def relevance_lines(labels: Sequence[str], values: np.ndarray, width: float, fontsize: float) -> int:
+SHORT_PITCH = CHIP_H + 0.07
+"""Line pitch of chips without numbers under them."""
+
+
+def relevance_lines(
+    labels: Sequence[str], values: np.ndarray, width: float, fontsize: float, numbers: bool = True
+) -> int:
     """How many lines of chips :func:`draw_relevance` needs at ``width`` inches."""
-    layout = chip_layout(labels, width, fontsize, fmt.column(values) if len(values) else ())
+    texts = fmt.column(values) if numbers and len(values) else ()
+    layout = chip_layout(labels, width, fontsize, texts)
     return (layout[-1][1] + 1) if layout else 1
 
 
-def draw_relevance(ax, values: np.ndarray, labels: Sequence[str], *, fontsize: float = 9):
+def draw_relevance(
+    ax, values: np.ndarray, labels: Sequence[str], *, fontsize: float = 9, numbers: bool = True
+):
     """The sentence as wrapped chips coloured by relevance, each value printed under its chip.
 
     The axes' data units are inches (the axes is measured), so chips, words and
-    numbers are laid out at their printed size.
+    numbers are laid out at their printed size. ``numbers=False`` leaves the
+    numbers out (a long sentence on a crowded page; the view's CSV holds them).
     """
     cmap = _cmap()
     width, height = _axes_inches(ax)
     vmax = max(float(values.max()), 1e-12) if values.size else 1.0
-    numbers = fmt.column(values) if len(values) else []
-    layout = chip_layout(labels, width, fontsize, numbers)
-    for (x, line, w), label, value, number in zip(layout, labels, values, numbers):
+    texts = fmt.column(values) if len(values) else []
+    layout = chip_layout(labels, width, fontsize, texts if numbers else ())
+    pitch = LINE_PITCH if numbers else SHORT_PITCH
+    for (x, line, w), label, value, number in zip(layout, labels, values, texts):
         colour = cmap(float(value) / vmax)
-        y = line * LINE_PITCH
+        y = line * pitch
         ax.add_patch(Rectangle((x, y), w, CHIP_H, facecolor=colour, edgecolor="#999999", linewidth=0.4))
         ax.text(
             x + w / 2,
@@ -256,9 +273,16 @@ def draw_relevance(ax, values: np.ndarray, labels: Sequence[str], *, fontsize: f
             fontsize=fontsize,
             color=palette.text_on(colour),
         )
-        ax.text(
-            x + w / 2, y + CHIP_H + 0.03, number, ha="center", va="top", fontsize=NUMBER_FONT, color="#444444"
-        )
+        if numbers:
+            ax.text(
+                x + w / 2,
+                y + CHIP_H + 0.03,
+                number,
+                ha="center",
+                va="top",
+                fontsize=NUMBER_FONT,
+                color="#444444",
+            )
     ax.set_xlim(0, width)
     ax.set_ylim(height, 0)
     ax.set_aspect("auto")
@@ -386,7 +410,7 @@ def matrix_figure(
     fig, cap = _figure(side + 1.6, side + 1.2, caption)
     w, h = fig.get_size_inches()
     body = h * (1 - cap)
-    label_room = min(1.3, 0.1 + max(text_width(t, 8) for t in labels) if labels else 0.5)
+    label_room = min(1.3, 0.1 + max(text_width(t, 8) for t in labels) if labels else 0.5) + 0.3
     size = min(w - label_room - 1.2, body - label_room - 0.2)
     ax = fig.add_axes(((label_room + 0.05) / w, (h * cap + 0.15) / h, size / w, size / h))
     image = draw_matrix(ax, matrix, labels, query=query, fontsize=float(np.clip(11 - m / 8, MIN_FONT, 9)))
@@ -490,15 +514,27 @@ def sheet_figure(
     foot = H - MARGIN - len(lines) * line_height(CAPTION_FONT)
     page.rule(MARGIN, foot - 0.06, inner)
     page.lines(MARGIN, foot, lines, CAPTION_FONT, color=palette.DIM_INK)
-    # relevance band: as tall as its chips need
-    band_font = 8.0
-    n_lines = relevance_lines(relevance_labels, relevance, inner, band_font) if relevance is not None else 1
-    band_h = LINE_PITCH * n_lines + 0.05
+    # relevance band: as tall as its chips need, at most half the room between header and caption
+    # (numbers under the chips while they fit in a third of the room, else shading only)
+    room = foot - 0.2 - y
+    band_h, band_font, numbers = 0.3, 8.0, True
+    if relevance is not None:
+        for band_font, numbers in ((8.0, True), (MIN_FONT, True), (8.0, False), (MIN_FONT, False)):
+            n_lines = relevance_lines(relevance_labels, relevance, inner, band_font, numbers)
+            band_h = (LINE_PITCH if numbers else SHORT_PITCH) * n_lines + 0.05
+            if band_h <= room / 3:
+                break
+    if not numbers:
+        relevance_title += " (shading only: the relevance band's own export lists the numbers)"
     band_top = foot - 0.2 - band_h - 0.28
     page.text(MARGIN, band_top, relevance_title, 9.5, weight="bold")
     if relevance is not None:
         draw_relevance(
-            page.axes(MARGIN, band_top + 0.28, inner, band_h), relevance, relevance_labels, fontsize=band_font
+            page.axes(MARGIN, band_top + 0.28, inner, band_h),
+            relevance,
+            relevance_labels,
+            fontsize=band_font,
+            numbers=numbers,
         )
     else:
         page.text(MARGIN, band_top + 0.3, "relevance not available", 8.0)
