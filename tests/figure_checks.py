@@ -29,9 +29,10 @@ def drawn_texts(fig) -> list[tuple[Text, object]]:
     )
     canvas.draw()
     renderer = canvas.get_renderer()
+    hidden = _undrawn_tick_labels(fig)
     out = []
     for t in fig.findobj(Text):
-        if not t.get_visible() or not t.get_text().strip():
+        if not t.get_visible() or not t.get_text().strip() or id(t) in hidden:
             continue
         axes = t.axes
         if axes is not None and not axes.get_visible():
@@ -41,6 +42,22 @@ def drawn_texts(fig) -> list[tuple[Text, object]]:
             continue
         out.append((t, box))
     return out
+
+
+def _undrawn_tick_labels(fig) -> set[int]:
+    """Ids of tick labels that exist but are not drawn (their tick lies outside the axis' view limits).
+
+    Uses the axis' own choice of ticks to draw (``Axis._update_ticks``, matplotlib internals).
+    """
+    hidden: set[int] = set()
+    for ax in fig.axes:
+        for axis in (ax.xaxis, ax.yaxis):
+            ticks = axis.get_major_ticks() + axis.get_minor_ticks()
+            drawn = {id(t) for t in axis._update_ticks()} if ax.axison and axis.get_visible() else set()
+            for tick in ticks:
+                if id(tick) not in drawn:
+                    hidden.update({id(tick.label1), id(tick.label2)})
+    return hidden
 
 
 def text_overlaps(fig) -> list[str]:

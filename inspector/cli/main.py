@@ -11,7 +11,7 @@ import argparse
 import sys
 from collections.abc import Callable, Sequence
 
-from inspector.cli import analyze, compare, corpus, explain, prune, window
+from inspector.cli import analyze, compare, corpus, explain, prune, report, window
 from inspector.cli.common import EXIT_USER_ERROR
 from inspector.errors import HeadcountError
 
@@ -22,6 +22,7 @@ COMMANDS: tuple[Callable[[argparse._SubParsersAction], None], ...] = (
     corpus.register,
     prune.register,
     compare.register,
+    report.register,
 )
 """Every sub-command's registration function, in the order ``--help`` lists them."""
 

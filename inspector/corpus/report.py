@@ -80,6 +80,7 @@ def summary_dict(report: CorpusReport) -> dict:
     ev, data = report.evaluation, report.data
     out: dict = {
         "model": report.model_name,
+        "model_path": report.model_path,
         "data": data_dict(data),
         "layers": report.num_layers,
         "heads_per_layer": report.num_heads,

@@ -35,6 +35,7 @@ import time
 from collections.abc import Callable, Sequence
 from contextlib import nullcontext
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 import torch
@@ -602,6 +603,8 @@ class CorpusReport:
     importance: HeadImportance | None = None
     pruning: PruningResult | None = None
     notes: list[str] = field(default_factory=list)
+    model_path: str | None = None
+    """The checkpoint folder the run used (the review report reloads it to explain misfires)."""
 
 
 def pruning_steps(settings: CorpusSettings, n_heads_total: int, baseline_known: bool) -> int:
@@ -729,6 +732,7 @@ def _run_corpus(
     )
     report = CorpusReport(
         model_name=lm.name,
+        model_path=str(Path(lm.path).resolve()),
         data=data,
         settings=settings,
         num_layers=lm.num_layers,

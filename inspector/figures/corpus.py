@@ -81,24 +81,20 @@ def _bar(fig: Figure, image, x: float, y: float, h: float, label: str):
     return bar
 
 
-def confusion_figure(evaluation: Evaluation, model: str = "") -> Figure:
-    """Confusion matrix: rows expected labels, columns predictions; colour = share of the expected label's
-    row on the sequential map, the count printed in each non-empty cell."""
+def label_room(names: list[str]) -> float:
+    """Inches the longest label takes at the smallest font, plus the axis title's room."""
+    return min(1.7, 0.15 + max((text_width(t, MIN_FONT) for t in names), default=0.5)) + 0.25
+
+
+def draw_confusion(fig: Figure, x: float, y: float, side: float, evaluation: Evaluation) -> float:
+    """The confusion matrix with its labels left and below, its colour bar right; returns the y below it.
+
+    (x, y) is the top-left corner of the matrix itself, in inches from the figure's top-left.
+    """
     cm = evaluation.confusion
     n = len(evaluation.labels)
     names = list(evaluation.labels)
-    label_room = min(1.7, 0.15 + max((text_width(t, MIN_FONT) for t in names), default=0.5))
-    side = float(np.clip(0.34 * n + 1.0, 3.0, 8.27 - label_room - 1.4))
-    caption = (
-        f"{_model(model)}{fmt.count(evaluation.total, 'utterance')}. Rows: the expected label; columns: the "
-        f"prediction; the number in a cell is a count of utterances; its colour ({palette.SEQUENTIAL_TEXT}) is "
-        "that count's share of the row."
-    )
-    width = label_room + side + 1.3
-    cap_h = _caption_height(caption, width)
-    height = 0.5 + side + label_room + 0.35 + cap_h
-    fig = _figure(width, height)
-    ax = _axes(fig, label_room + 0.05, 0.5, side, side)
+    ax = _axes(fig, x, y, side, side)
     share = cm / np.maximum(cm.sum(1, keepdims=True), 1)
     cmap = palette.sequential_map()
     im = ax.imshow(share, cmap=cmap, vmin=0, vmax=1)
@@ -122,8 +118,31 @@ def confusion_figure(evaluation: Evaluation, model: str = "") -> Figure:
                         fontsize=MIN_FONT,
                         color=palette.text_on(cmap(float(share[i, j]))),
                     )
-    bar = _bar(fig, im, label_room + side + 0.25, 0.5, side, "share of the expected label's row")
+    bar = _bar(fig, im, x + side + 0.2, y, side, "share of the expected label's row")
     bar.ax.yaxis.set_major_formatter(PERCENT_TICKS)
+    return y + side + label_room(names)
+
+
+def confusion_caption(evaluation: Evaluation, model: str = "") -> str:
+    return (
+        f"{_model(model)}{fmt.count(evaluation.total, 'utterance')}. Rows: the expected label; columns: the "
+        f"prediction; the number in a cell is a count of utterances; its colour ({palette.SEQUENTIAL_TEXT}) is "
+        "that count's share of the row."
+    )
+
+
+def confusion_figure(evaluation: Evaluation, model: str = "") -> Figure:
+    """Confusion matrix: rows expected labels, columns predictions; colour = share of the expected label's
+    row on the sequential map, the count printed in each non-empty cell."""
+    n = len(evaluation.labels)
+    room = label_room(list(evaluation.labels))
+    side = float(np.clip(0.34 * n + 1.0, 3.0, 8.27 - room - 1.4))
+    caption = confusion_caption(evaluation, model)
+    width = room + side + 1.3
+    cap_h = _caption_height(caption, width)
+    height = 0.5 + side + room + 0.1 + cap_h
+    fig = _figure(width, height)
+    bottom = draw_confusion(fig, room + 0.05, 0.5, side, evaluation)
     fig.text(
         0.15 / width,
         1 - 0.12 / height,
@@ -132,7 +151,7 @@ def confusion_figure(evaluation: Evaluation, model: str = "") -> Figure:
         va="top",
         ha="left",
     )
-    _caption(fig, caption, 0.5 + side + label_room + 0.35)
+    _caption(fig, caption, bottom + 0.1)
     return fig
 
 
@@ -163,22 +182,38 @@ def _head_grid(ax, values: np.ndarray, decimals: int, cell: float) -> object:
     return im
 
 
-def importance_figure(importance: HeadImportance, model: str = "") -> Figure:
-    """Heat map of layer-normalised head importance [layers x heads], the value printed in each cell."""
+def importance_cell(importance: HeadImportance, width: float = 6.2) -> float:
     layers, heads = importance.normalized.shape
-    cell = float(np.clip(6.2 / max(heads, layers * 0.8), 0.22, 0.5))
-    caption = (
+    return float(np.clip(width / max(heads, layers * 0.8), 0.22, 0.5))
+
+
+def draw_importance(fig: Figure, x: float, y: float, cell: float, importance: HeadImportance) -> float:
+    """The importance grid at (x, y) with its colour bar; returns the y below it."""
+    layers, heads = importance.normalized.shape
+    ax = _axes(fig, x, y, cell * heads, cell * layers)
+    im = _head_grid(ax, importance.normalized, 2, cell)
+    _bar(fig, im, x + cell * heads + 0.15, y, cell * layers, "importance")
+    return y + cell * layers + 0.45
+
+
+def importance_caption(importance: HeadImportance, model: str = "") -> str:
+    return (
         f"{_model(model)}Michel et al. (2019) gate-gradient importance over "
         f"{fmt.count(importance.count, 'utterance')}, l2-normalised within each layer; layers and heads count "
         f"from 0. Colour: {palette.SEQUENTIAL_TEXT}, 0 to the largest head."
     )
+
+
+def importance_figure(importance: HeadImportance, model: str = "") -> Figure:
+    """Heat map of layer-normalised head importance [layers x heads], the value printed in each cell."""
+    layers, heads = importance.normalized.shape
+    cell = importance_cell(importance)
+    caption = importance_caption(importance, model)
     width = 0.8 + cell * heads + 1.3
     cap_h = _caption_height(caption, width)
     height = 0.55 + cell * layers + 0.55 + cap_h
     fig = _figure(width, height)
-    ax = _axes(fig, 0.7, 0.55, cell * heads, cell * layers)
-    im = _head_grid(ax, importance.normalized, 2, cell)
-    _bar(fig, im, 0.7 + cell * heads + 0.15, 0.55, cell * layers, "importance")
+    bottom = draw_importance(fig, 0.7, 0.55, cell, importance)
     fig.text(
         0.15 / width,
         1 - 0.12 / height,
@@ -186,29 +221,17 @@ def importance_figure(importance: HeadImportance, model: str = "") -> Figure:
         fontsize=10,
         va="top",
     )
-    _caption(fig, caption, 0.55 + cell * layers + 0.5)
+    _caption(fig, caption, bottom + 0.05)
     return fig
 
 
-def similarity_figure(redundancy: Redundancy, model: str = "") -> Figure:
-    """Head-by-head similarity ``1 - mean JS (bits)``, heads ordered layer by layer, near-duplicates framed."""
+def draw_similarity(fig: Figure, x: float, y: float, side: float, redundancy: Redundancy) -> float:
+    """The head-by-head similarity matrix at (x, y), near-duplicates framed; returns the y below it."""
     from matplotlib.patches import Rectangle
 
     sim = redundancy.similarity
     k, heads = len(sim), redundancy.num_heads
-    side = 5.6
-    caption = (
-        f"{_model(model)}Similarity = 1 \u2212 mean Jensen-Shannon divergence between two heads' attention rows "
-        f"(bits). Within each layer block heads run {fmt.head_tick(0)}..{fmt.head_tick(heads - 1)}; framed: "
-        f"near-duplicate groups (complete linkage at {fmt.bits(redundancy.threshold)}); "
-        f"{redundancy.rows_compared} of {fmt.count(redundancy.rows_total, 'query row')} compared. Colour: "
-        f"{palette.SEQUENTIAL_TEXT}, from the least similar pair to identical."
-    )
-    width = 0.6 + side + 1.4
-    cap_h = _caption_height(caption, width)
-    height = 0.55 + side + 0.45 + cap_h
-    fig = _figure(width, height)
-    ax = _axes(fig, 0.55, 0.55, side, side)
+    ax = _axes(fig, x, y, side, side)
     off = sim[~np.eye(k, dtype=bool)] if k > 1 else np.ones(1)
     im = ax.imshow(sim, cmap=palette.sequential_map(), vmin=float(off.min()), vmax=1.0)
     layers = redundancy.num_layers
@@ -228,7 +251,30 @@ def similarity_figure(redundancy: Redundancy, model: str = "") -> Figure:
                     ax.add_patch(
                         Rectangle((j - 0.5, i - 0.5), 1, 1, fill=False, edgecolor=palette.INK, lw=0.8)
                     )
-    _bar(fig, im, 0.55 + side + 0.15, 0.55, side, "1 \u2212 mean JS divergence (bits)")
+    _bar(fig, im, x + side + 0.15, y, side, "1 \u2212 mean JS divergence (bits)")
+    return y + side + 0.35
+
+
+def similarity_caption(redundancy: Redundancy, model: str = "") -> str:
+    heads = redundancy.num_heads
+    return (
+        f"{_model(model)}Similarity = 1 \u2212 mean Jensen-Shannon divergence between two heads' attention rows "
+        f"(bits). Within each layer block heads run {fmt.head_tick(0)}..{fmt.head_tick(heads - 1)}; framed: "
+        f"near-duplicate groups (complete linkage at {fmt.bits(redundancy.threshold)}); "
+        f"{redundancy.rows_compared} of {fmt.count(redundancy.rows_total, 'query row')} compared. Colour: "
+        f"{palette.SEQUENTIAL_TEXT}, from the least similar pair to identical."
+    )
+
+
+def similarity_figure(redundancy: Redundancy, model: str = "") -> Figure:
+    """Head-by-head similarity ``1 - mean JS (bits)``, heads ordered layer by layer, near-duplicates framed."""
+    side = 5.6
+    caption = similarity_caption(redundancy, model)
+    width = 0.6 + side + 1.4
+    cap_h = _caption_height(caption, width)
+    height = 0.55 + side + 0.45 + cap_h
+    fig = _figure(width, height)
+    bottom = draw_similarity(fig, 0.55, 0.55, side, redundancy)
     fig.text(
         0.15 / width,
         1 - 0.12 / height,
@@ -236,26 +282,13 @@ def similarity_figure(redundancy: Redundancy, model: str = "") -> Figure:
         fontsize=10,
         va="top",
     )
-    _caption(fig, caption, 0.55 + side + 0.4)
+    _caption(fig, caption, bottom + 0.05)
     return fig
 
 
-def pruning_figure(pruning: PruningResult, model: str = "") -> Figure:
-    """Accuracy against the share of heads switched off, one grey line per order; the exported mask in the accent."""
-    n = pruning.curves[0].utterances
-    caption = (
-        f"{_model(model)}{pruning.caution} Heads switched off by gates on {fmt.count(n, 'utterance')}"
-        + (
-            f", measured every {fmt.count(pruning.every, 'head')}."
-            if pruning.every > 1
-            else ", one head per step."
-        )
-    )
-    width = 6.8
-    cap_h = _caption_height(caption, width)
-    height = 0.45 + 3.6 + 0.55 + cap_h
-    fig = _figure(width, height)
-    ax = _axes(fig, 0.75, 0.45, width - 1.0, 3.6)
+def draw_pruning(fig: Figure, x: float, y: float, w: float, h: float, pruning: PruningResult) -> float:
+    """Accuracy against the share of heads switched off at (x, y, w, h); returns the y below it."""
+    ax = _axes(fig, x, y, w, h)
     for i, curve in enumerate(pruning.curves):
         dash, marker, grey = ORDER_STYLES[i % len(ORDER_STYLES)]
         ax.plot(
@@ -299,8 +332,28 @@ def pruning_figure(pruning: PruningResult, model: str = "") -> Figure:
     ax.set_yticks(np.linspace(0, 1, 6))
     ax.grid(alpha=0.3)
     ax.legend(fontsize=MIN_FONT, loc="lower left")
+    return y + h + 0.5
+
+
+def pruning_caption(pruning: PruningResult, model: str = "") -> str:
+    n = pruning.curves[0].utterances
+    return f"{_model(model)}{pruning.caution} Heads switched off by gates on {fmt.count(n, 'utterance')}" + (
+        f", measured every {fmt.count(pruning.every, 'head')}."
+        if pruning.every > 1
+        else ", one head per step."
+    )
+
+
+def pruning_figure(pruning: PruningResult, model: str = "") -> Figure:
+    """Accuracy against the share of heads switched off, one grey line per order; the exported mask in the accent."""
+    caption = pruning_caption(pruning, model)
+    width = 6.8
+    cap_h = _caption_height(caption, width)
+    height = 0.45 + 3.6 + 0.55 + cap_h
+    fig = _figure(width, height)
+    bottom = draw_pruning(fig, 0.75, 0.45, width - 1.0, 3.6, pruning)
     fig.text(0.15 / width, 1 - 0.1 / height, "Pruning simulation (no retraining)", fontsize=10, va="top")
-    _caption(fig, caption, 0.45 + 3.6 + 0.5)
+    _caption(fig, caption, bottom)
     return fig
 
 
