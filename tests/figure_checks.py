@@ -22,7 +22,11 @@ TOLERANCE = 0.6
 
 
 def drawn_texts(fig) -> list[tuple[Text, object]]:
-    """(text artist, its box in points) for every visible, non-empty text after drawing."""
+    """(text artist, its box in points) for every visible, non-empty text after drawing (drawn once per
+    figure: the result is kept on the figure)."""
+    cached = getattr(fig, "_headcount_drawn_texts", None)
+    if cached is not None:
+        return cached
     fig.set_dpi(72)
     canvas = (
         FigureCanvasAgg(fig) if fig.canvas is None or not hasattr(fig.canvas, "get_renderer") else fig.canvas
@@ -41,6 +45,7 @@ def drawn_texts(fig) -> list[tuple[Text, object]]:
         if box.width <= 0 or box.height <= 0:
             continue
         out.append((t, box))
+    fig._headcount_drawn_texts = out
     return out
 
 

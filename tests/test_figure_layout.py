@@ -215,4 +215,5 @@ def test_the_checks_catch_an_overlap_and_a_small_font():
     assert len(text_overlaps(fig)) == 1
     assert small_fonts(fig, 7.0) == ["'tiny' at 5.0 pt"]
     fig.text(0.95, 0.9, "runs off the right edge", fontsize=9)
+    fig._headcount_drawn_texts = None  # drawn again with the new label
     assert outside(fig)
