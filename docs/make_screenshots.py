@@ -176,7 +176,7 @@ def corpus_run(app, window) -> None:
     page.every.setValue(2)  # a measured point every two heads keeps the screenshot run short
     page.run()
     wait_until(app, lambda: page.report is not None and not window.is_busy(), timeout=600.0)
-    page.tabs.setCurrentIndex(1)
+    page.tabs.setCurrentIndex(2)
     wait_until(app, lambda: not window.is_busy())
     window.grab().save(str(DOCS / "corpus_heads.png"))
     page.tabs.setCurrentIndex(0)

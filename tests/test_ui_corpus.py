@@ -190,6 +190,7 @@ def test_a_click_on_a_misfire_opens_it_in_the_sentence_page_and_explain_on_the_e
     assert run_and_wait(qtbot, window, data_file) == "done"
     misfires = page.report.evaluation.misfires
     row = len(misfires) - 1
+    page.tabs.setCurrentWidget(page.misfire_tab)
     page.misfires.scrollToItem(page.misfires.item(row, 1))
     rect = page.misfires.visualItemRect(page.misfires.item(row, 1))
     qtbot.mouseClick(page.misfires.viewport(), Qt.MouseButton.LeftButton, pos=rect.center())
@@ -206,6 +207,7 @@ def test_a_click_on_a_misfire_opens_it_in_the_sentence_page_and_explain_on_the_e
     )
 
     window.show_page(page)
+    page.tabs.setCurrentWidget(page.misfire_tab)
     button = page.misfires.cellWidget(0, 5)
     qtbot.mouseClick(button, Qt.MouseButton.LeftButton)
     assert window.pages.currentWidget() is window.explain_page
@@ -214,6 +216,7 @@ def test_a_click_on_a_misfire_opens_it_in_the_sentence_page_and_explain_on_the_e
     qtbot.waitUntil(lambda: window.explain_page.state.ready, timeout=WAIT_MS)
 
     window.show_page(page)
+    page.tabs.setCurrentWidget(page.misfire_tab)
     page.misfires.setFocus()
     page.misfires.setCurrentCell(0, 1)
     qtbot.keyClick(page.misfires, Qt.Key.Key_Return)
@@ -307,3 +310,118 @@ def test_each_phase_shows_its_results_when_it_ends_and_cancel_keeps_them(
     for phase in ("importance", "pruning"):
         assert page.phase_bars[phase].format().endswith("cancelled")
     assert "cancelled" in page.importance_map.note
+
+
+def test_misfires_sort_search_and_filter_by_confusion_cell_or_pair(qtbot, window, data_file):
+    """Sorting by line keeps each row's misfire; a search, a confusion cell and a confusable pair filter the
+    table to exactly the matching misfires.
+
+    Reference: identities of the confusion matrix (an off-diagonal cell counts the misfires of that pair,
+    a row's off-diagonal sum those of its expected label); the misfire list of the run.
+    """
+    page = window.corpus_page
+    assert run_and_wait(qtbot, window, data_file) == "done"
+    ev = page.report.evaluation
+    assert ev.misfires, "the tiny classifier should misroute some invented utterances"
+    page.tabs.setCurrentWidget(page.misfire_tab)
+    page.misfires.horizontalHeader().sectionClicked.emit(0)  # sort by line, as a header click does
+    page.misfires.sortItems(0, Qt.SortOrder.AscendingOrder)
+    lines = [int(page.misfires.item(r, 0).text()) for r in range(page.misfires.rowCount())]
+    assert lines == sorted(m.row for m in ev.misfires)
+    for r in range(page.misfires.rowCount()):
+        m = ev.misfires[page._misfire_index(r)]
+        assert (m.row, m.text) == (lines[r], page.misfires.item(r, 1).text())
+    # a confusion cell off the diagonal: exactly its count of misfires, all of that pair
+    cm = ev.confusion
+    r, c = next((i, j) for i in range(len(cm)) for j in range(len(cm)) if i != j and cm[i, j])
+    page.confusion.cell_clicked.emit(r, c)
+    assert page.tabs.currentWidget() is page.misfire_tab
+    shown = page.shown_misfires()
+    assert len(shown) == cm[r, c] and {(m.expected, m.predicted) for m in shown} == {
+        (ev.labels[r], ev.labels[c])
+    }
+    assert f"Showing {cm[r, c]} of" in page.filter_label.text()
+    # a confusable pair from the list
+    page.clear_filter()
+    assert len(page.shown_misfires()) == len(ev.misfires)
+    first = page.pairs.item(0, 0).data(Qt.ItemDataRole.UserRole)
+    page._pair_clicked(0)
+    assert {(m.expected, m.predicted) for m in page.shown_misfires()} == {tuple(first)}
+    assert int(page.pairs.item(0, 1).text()) == len(page.shown_misfires())
+    # a search: every shown misfire contains the words, every hidden one misses one
+    page.clear_filter()
+    word = ev.misfires[0].text.split()[0]
+    page.search.setText(word)
+    shown = page.shown_misfires()
+    assert shown and all(
+        word.lower() in f"{m.row} {m.text} {m.expected} {m.predicted}".lower() for m in shown
+    )
+    assert len(shown) == sum(
+        word.lower() in f"{m.row} {m.text} {m.expected} {m.predicted}".lower() for m in ev.misfires
+    )
+
+
+def test_ctrl_e_exports_the_focused_corpus_view_and_says_so(qtbot, window, data_file, tmp_path, monkeypatch):
+    """Ctrl+E with the importance map focused writes its figure and CSV, the status bar names it, and the
+    next dialog (the prune mask's) opens in that folder.
+
+    Reference: PNG signature (PNG spec 5.2); the CSV against the run's importance; common practice, no
+    source, for the remembered folder.
+    """
+    from ui.widgets import export as export_actions
+
+    page = window.corpus_page
+    assert run_and_wait(qtbot, window, data_file) == "done"
+    page.tabs.setCurrentIndex(2)
+    page.importance_map.setFocus()
+    qtbot.waitUntil(lambda: page.focusWidget() is page.importance_map, timeout=5_000)
+    assert page.focused_view() == "importance"
+    target = tmp_path / "figures" / "importance.png"
+    target.parent.mkdir()
+    monkeypatch.setattr(
+        export_actions.QFileDialog, "getSaveFileName", staticmethod(lambda *a, **k: (str(target), ""))
+    )
+    messages: list[str] = []
+    window.statusBar().messageChanged.connect(lambda text: text and messages.append(text))
+    window.export_focused()
+    qtbot.waitUntil(lambda: target.with_suffix(".csv").is_file() and not window.is_busy(), timeout=WAIT_MS)
+    assert target.read_bytes().startswith(b"\x89PNG")
+    import csv
+
+    with target.with_suffix(".csv").open(newline="", encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    imp = page.report.importance.normalized
+    assert len(rows) == imp.size
+    assert all(float(r["importance"]) == pytest.approx(imp[int(r["layer"]), int(r["head"])]) for r in rows)
+    qtbot.waitUntil(lambda: any("Exported head importance" in m for m in messages), timeout=5_000)
+    seen = {}
+
+    def fake_save(parent, title, start, filters):
+        seen["start"] = start
+        return "", ""
+
+    import ui.corpus.page as corpus_page_module
+
+    monkeypatch.setattr(corpus_page_module.QFileDialog, "getSaveFileName", staticmethod(fake_save))
+    page.choose_mask_file()
+    assert Path(seen["start"]).parent == target.parent
+
+
+def test_review_report_from_the_corpus_page(qtbot, window, data_file, tmp_path):
+    """The page writes the same review report as ``headcount report``, off the GUI thread.
+
+    Reference: pypdf reads the PDF back (ISO 216 A4 page sizes); the report's fixed sections.
+    """
+    pypdf = pytest.importorskip("pypdf")
+    page = window.corpus_page
+    assert run_and_wait(qtbot, window, data_file) == "done"
+    out = tmp_path / "review.pdf"
+    page.write_review(out, explain=1)
+    qtbot.waitUntil(lambda: out.is_file() and not window.runner.is_busy("report"), timeout=WAIT_MS)
+    reader = pypdf.PdfReader(str(out))
+    sizes = {(round(float(p.mediabox.width)), round(float(p.mediabox.height))) for p in reader.pages}
+    assert sizes <= {(595, 842), (842, 595)}
+    text = " ".join(p.extract_text() for p in reader.pages)
+    assert page.report.model_name in text and "Review report" in text
+    assert len(reader.pages) >= 8
+    assert "Review report written" in page.phase_label.text()

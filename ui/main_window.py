@@ -81,7 +81,8 @@ SHORTCUTS_HELP = """<table cellspacing=4>
 <tr><td nowrap><b>Ctrl+Shift+X</b></td><td>Explain the sentence: what pushed it toward each label, and rewordings</td></tr>
 <tr><td nowrap><b>Ctrl+Return</b></td><td>On the Explain page: explain again (and compare the rewording)</td></tr>
 <tr><td nowrap><b>Ctrl+Shift+K</b></td><td>Corpus page: a whole evaluation set (Enter on a misfire: sentence view; Ctrl+Enter: explain)</td></tr>
-<tr><td nowrap><b>Ctrl+Shift+R</b></td><td>On the Corpus page: export the report folder</td></tr>
+<tr><td nowrap><b>Ctrl+E</b> (Corpus page)</td><td>Export the focused view: confusion matrix, misfires, importance, similarity or pruning curve</td></tr>
+<tr><td nowrap><b>Ctrl+Shift+R</b></td><td>On the Corpus page: export the run folder (the corpus command's files)</td></tr>
 </table>"""
 
 
@@ -183,7 +184,7 @@ class MainWindow(QMainWindow):
         self.add_page("Sentence", self.sentence_page)
         self.explain_page = ExplainPage(self.runner, self.exporter, self, defaults=self._current_sentence)
         self.add_page("Explain", self.explain_page)
-        self.corpus_page = CorpusPage(self.runner, self.settings, self)
+        self.corpus_page = CorpusPage(self.runner, self.settings, self, exporter=self.exporter)
         self.add_page("Corpus", self.corpus_page)
         self.compare_view = ComparisonView(self.runner, self.settings, self.corpus_page.request, self)
         self.corpus_page.tabs.addTab(self.compare_view, "Co&mparison")
@@ -717,6 +718,8 @@ class MainWindow(QMainWindow):
             self.busy_label.setText("Analysing the corpus\u2026")
         elif busy and channel == "compare":
             self.busy_label.setText("Comparing the two models\u2026")
+        elif busy and channel == "report":
+            self.busy_label.setText("Writing the review report\u2026")
 
     # -- recent models -----------------------------------------------------------------------------
     def recent_models(self) -> list[str]:

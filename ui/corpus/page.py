@@ -40,8 +40,10 @@ from PySide6.QtWidgets import (
     QLineEdit,
     QProgressBar,
     QPushButton,
+    QSizePolicy,
     QSpinBox,
     QSplitter,
+    QTableWidgetItem,
     QTabWidget,
     QVBoxLayout,
     QWidget,
@@ -56,12 +58,14 @@ from inspector.corpus.report import write_report
 from inspector.corpus.run import PHASES, CorpusCancelled, CorpusReport, PhaseProgress
 from inspector.corpus.settings import CorpusSettings
 from inspector.formatting import count
+from ui.corpus.export import EXPORT_KINDS, build_export
 from ui.corpus.pruning_plot import PruningPlot
 from ui.corpus.state import (
     PHASE_TITLES,
     PHASE_WORDS,
     CorpusRequest,
     MaskChoice,
+    MisfireFilter,
     cancel_text,
     choose_by_count,
     choose_by_tolerance,
@@ -75,6 +79,7 @@ from ui.corpus.state import (
     head_names,
     intent_rows,
     mask_text,
+    pair_rows,
     phase_text,
     planned_phases,
     provenance,
@@ -82,7 +87,7 @@ from ui.corpus.state import (
     with_choice,
     with_threshold,
 )
-from ui.widgets.export import last_folder, remember_folder
+from ui.widgets.export import ExportController, last_folder, remember_folder, slug
 from ui.widgets.legend import ColourKey
 from ui.widgets.mask_files import MaskFiles
 from ui.widgets.matrix_map import MatrixMap
@@ -113,6 +118,33 @@ class _Progress(QObject):
     """run number, phase that ended, the report so far."""
     held = Signal(int, bool)
     """run number, whether the run holds the window's model (no private copy)."""
+
+
+SORT_ROLE = Qt.ItemDataRole.UserRole + 1
+"""Item data the misfire table sorts by (numbers as numbers, text case-folded)."""
+INDEX_ROLE = Qt.ItemDataRole.UserRole
+"""Item data of a misfire row's first cell: the misfire's index in the report (rows move when sorted)."""
+
+
+class _SortItem(QTableWidgetItem):
+    """A table item that sorts by its SORT_ROLE value."""
+
+    def __lt__(self, other: QTableWidgetItem) -> bool:
+        a, b = self.data(SORT_ROLE), other.data(SORT_ROLE)
+        if a is None or b is None:
+            return super().__lt__(other)
+        return a < b
+
+
+def _sort_cell(text: str, align_right: bool = False, tip: str = "", key: object = None) -> QTableWidgetItem:
+    """A table cell that sorts by ``key`` (default: its text, case-folded)."""
+    item = _SortItem(text)
+    item.setData(SORT_ROLE, key if key is not None else text.casefold())
+    if align_right:
+        item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+    if tip:
+        item.setToolTip(tip)
+    return item
 
 
 def _two_over_one(
@@ -149,9 +181,16 @@ class CorpusPage(QWidget):
     holds_model = Signal(bool)
     """True while a run uses the window's own model (no room for a private copy): analyses wait."""
 
-    def __init__(self, runner: JobRunner, settings: QSettings, parent: QWidget | None = None) -> None:
+    def __init__(
+        self,
+        runner: JobRunner,
+        settings: QSettings,
+        parent: QWidget | None = None,
+        exporter: ExportController | None = None,
+    ) -> None:
         super().__init__(parent)
-        self.runner, self.settings = runner, settings
+        self.runner, self.settings, self.exporter = runner, settings, exporter
+        self.filter = MisfireFilter()
         self.lm: LoadedModel | None = None
         self.report: CorpusReport | None = None
         self.loaded_mask: HeadMask | None = None
@@ -175,6 +214,8 @@ class CorpusPage(QWidget):
 
         self.tabs = QTabWidget(self)
         self.tabs.addTab(self._evaluation_tab(), "&Evaluation")
+        self.misfire_tab = self._misfire_tab()
+        self.tabs.addTab(self.misfire_tab, "&Misfires")
         self.tabs.addTab(self._heads_tab(), "&Heads and pruning")
         self.data_note = QLabel("", self)
         self.data_note.setWordWrap(True)
@@ -185,7 +226,7 @@ class CorpusPage(QWidget):
         runner.busy_changed.connect(self._busy_changed)
         export = QShortcut(QKeySequence("Ctrl+Shift+R"), self)
         export.setContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
-        export.activated.connect(self.export_current)
+        export.activated.connect(self.export_folder)
         self._set_running(False)
         self.clear("Open a sentence classifier, choose its evaluation set and press Run")
 
@@ -245,12 +286,18 @@ class CorpusPage(QWidget):
             self.phase_bars[name] = bar
         self.phase_label = QLabel("", box)
         self.phase_label.setWordWrap(True)
-        self.export_button = QPushButton("E&xport report\u2026", box)
+        self.export_button = QPushButton("E&xport run folder\u2026", box)
         self.export_button.setToolTip(
             "Write summary.json, heads.csv, similar_pairs.csv, pruning.csv, prune_mask.json and the figures "
-            "into a folder \u2014 Ctrl+Shift+R"
+            "into a folder \u2014 Ctrl+Shift+R (Ctrl+E exports the view that has the focus)"
         )
-        self.export_button.clicked.connect(self.export_current)
+        self.export_button.clicked.connect(self.export_folder)
+        self.review_button = QPushButton("Review re&port\u2026", box)
+        self.review_button.setToolTip(
+            "One printable PDF (or one self-contained HTML file) for the review: scores, confusion matrix, "
+            "misfires by confusable pair, explanations of the top misfires, heads, pruning, definitions"
+        )
+        self.review_button.clicked.connect(self.choose_review_file)
 
         grid = control_grid(box)
 
@@ -290,6 +337,7 @@ class CorpusPage(QWidget):
         third.addWidget(self.cancel_button)
         for bar in self.phase_bars.values():
             third.addWidget(bar, 1)
+        third.addWidget(self.review_button)
         grid.addLayout(first, 0, 0)
         grid.addLayout(second, 1, 0)
         grid.addLayout(third, 2, 0)
@@ -315,20 +363,43 @@ class CorpusPage(QWidget):
         column(intent_body, [self.summary, (self.intents, 1)], margins=(8, 0, 8, 4), spacing=6)
         intent_panel = Panel("Scores", intent_body, tab)
         self.confusion = MatrixMap("Confusion matrix", tab)
+        self.confusion.cell_clicked.connect(self._confusion_clicked)
         self.confusion_panel = Panel("Confusion matrix", self.confusion, tab)
-        self.confusion_panel.set_subtitle("rows: expected \u00b7 columns: predicted \u00b7 framed: correct")
+        self.confusion_panel.subtitle.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.confusion_panel.set_subtitle(
+            "rows: expected \u00b7 columns: predicted \u00b7 framed: correct \u00b7 click a cell: its misfires"
+        )
         self._key(
             self.confusion_panel,
             "Share of the expected label's utterances:",
             fmt.percent(0.0),
             fmt.percent(1.0),
         )
+        split = QSplitter(Qt.Orientation.Horizontal, tab)
+        split.addWidget(intent_panel)
+        split.addWidget(self.confusion_panel)
+        split.setSizes([430, 820])
+        split.setChildrenCollapsible(False)
+        column(tab, [(split, 1)], margins=0, spacing=0)
+        return tab
+
+    def _misfire_tab(self) -> QWidget:
+        tab = QWidget(self)
+        self.pairs = _table(tab, ("Expected \u2192 predicted", "Misfires", "Top"), "Confusable pairs")
+        self.pairs.horizontalHeader().setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
+        for col in (1, 2):
+            self.pairs.horizontalHeader().setSectionResizeMode(col, QHeaderView.ResizeMode.ResizeToContents)
+        self.pairs.cellClicked.connect(lambda row, _c: self._pair_clicked(row))
+        self.pairs.horizontalHeaderItem(2).setToolTip("Confidence of the pair's most confident misfire")
+        pair_panel = Panel("Confusable pairs", self.pairs, tab)
+        pair_panel.set_subtitle("click one: its misfires")
 
         self.misfires = _table(tab, MISFIRE_HEADER, "Misfires")
         header = self.misfires.horizontalHeader()
         header.setSectionResizeMode(1, QHeaderView.ResizeMode.Stretch)
         for col in (0, 2, 3, 4, EXPLAIN_COLUMN):
             header.setSectionResizeMode(col, QHeaderView.ResizeMode.ResizeToContents)
+        self.misfires.setSortingEnabled(True)
         self.misfires.cellClicked.connect(self._misfire_clicked)
         for key in ("Return", "Enter"):
             enter = QShortcut(QKeySequence(key), self.misfires)
@@ -337,13 +408,43 @@ class CorpusPage(QWidget):
             explain = QShortcut(QKeySequence(f"Ctrl+{key}"), self.misfires)
             explain.setContext(Qt.ShortcutContext.WidgetShortcut)
             explain.activated.connect(lambda: self.explain_misfire(self.misfires.currentRow()))
-        self.misfire_panel = Panel("Misfires, most confident first", self.misfires, tab)
+        self.search = QLineEdit(tab)
+        self.search.setAccessibleName("Search the misfires")
+        self.search.setPlaceholderText("Search words, labels or a line number")
+        self.search.setClearButtonEnabled(True)
+        self.search.textChanged.connect(self._search_changed)
+        self.filter_label = QLabel("", tab)
+        self.filter_label.setAccessibleName("Misfire filter")
+        self.filter_label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        self.filter_label.setMinimumWidth(120)
+        self.show_all_button = QPushButton("Show &all", tab)
+        self.show_all_button.setToolTip("Clear the search and the pair filter")
+        self.show_all_button.clicked.connect(self.clear_filter)
+        bar = QWidget(tab)
+        row = QHBoxLayout(bar)
+        row.setContentsMargins(8, 0, 8, 0)
+        row.setSpacing(8)
+        row.addWidget(buddy_label("&Search:", self.search, bar))
+        row.addWidget(self.search, 2)
+        row.addWidget(self.filter_label, 3)
+        row.addWidget(self.show_all_button)
+        body = QWidget(tab)
+        column(body, [bar, (self.misfires, 1)], margins=0, spacing=4)
+        self.misfire_panel = Panel("Misfires", body, tab)
         self.misfire_panel.set_subtitle(
-            "click (or Enter) opens one in the sentence view \u00b7 Explain (or Ctrl+Enter) on the Explain page"
+            "click a header to sort \u00b7 click (or Enter) opens one in the sentence view \u00b7 "
+            "Explain (or Ctrl+Enter) on the Explain page"
         )
-        return _two_over_one(
-            tab, (intent_panel, self.confusion_panel, self.misfire_panel), [520, 700], [520, 240]
-        )
+        for panel in (pair_panel, self.misfire_panel):
+            panel.subtitle.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+            panel.subtitle.setMinimumWidth(40)
+        split = QSplitter(Qt.Orientation.Horizontal, tab)
+        split.addWidget(pair_panel)
+        split.addWidget(self.misfire_panel)
+        split.setSizes([360, 900])
+        split.setChildrenCollapsible(False)
+        column(tab, [(split, 1)], margins=0, spacing=0)
+        return tab
 
     def _heads_tab(self) -> QWidget:
         tab = QWidget(self)
@@ -671,6 +772,7 @@ class CorpusPage(QWidget):
         self.prune_button.setEnabled(has_heads and not running)
         for box in (self.order_box, self.count_box):
             box.setEnabled(pruned)
+        self.review_button.setEnabled(self.report is not None)
 
     # -- showing -----------------------------------------------------------------------------------
     def clear(self, note: str) -> None:
@@ -678,6 +780,9 @@ class CorpusPage(QWidget):
         self.summary.setText(note)
         self.intents.setRowCount(0)
         self.misfires.setRowCount(0)
+        self.pairs.setRowCount(0)
+        self.filter = MisfireFilter()
+        self.filter_label.setText("")
         for view in (self.confusion, self.importance_map, self.similarity):
             view.set_data(None, [], [], note=note)
         self.groups.setText("")
@@ -737,30 +842,112 @@ class CorpusPage(QWidget):
 
     def _fill_misfires(self, report: CorpusReport) -> None:
         misfires = report.evaluation.misfires
-        self.misfires.setRowCount(len(misfires))
+        table = self.misfires
+        table.setSortingEnabled(False)
+        table.setRowCount(len(misfires))
         for r, m in enumerate(misfires):
             cells = (
-                _cell(str(m.row), True, "Line in the data file"),
-                _cell(m.text, tip=m.text),
-                _cell(m.expected),
-                _cell(m.predicted),
-                _cell(
+                _sort_cell(str(m.row), True, "Line in the data file", key=m.row),
+                _sort_cell(m.text, tip=m.text),
+                _sort_cell(m.expected),
+                _sort_cell(m.predicted),
+                _sort_cell(
                     fmt.percent(m.confidence),
                     True,
                     f"probability of the predicted label; the expected label got {fmt.percent(m.expected_probability)}",
+                    key=m.confidence,
                 ),
             )
+            cells[0].setData(INDEX_ROLE, r)
             for c, item in enumerate(cells):
-                self.misfires.setItem(r, c, item)
-            button = QPushButton("Explain", self.misfires)
+                table.setItem(r, c, item)
+            button = QPushButton("Explain", table)
             button.setToolTip("Open this utterance on the Explain page with its expected label")
             button.setFocusPolicy(Qt.FocusPolicy.NoFocus)
-            button.clicked.connect(lambda _c=False, row=r: self.explain_misfire(row))
-            self.misfires.setCellWidget(r, EXPLAIN_COLUMN, button)
+            button.clicked.connect(lambda _c=False, k=r: self._explain_index(k))
+            table.setCellWidget(r, EXPLAIN_COLUMN, button)
+        table.setSortingEnabled(True)
+        table.sortItems(4, Qt.SortOrder.DescendingOrder)
+        rows = pair_rows(report)
+        self.pairs.setRowCount(len(rows))
+        for r, ((expected, predicted), n, top) in enumerate(rows):
+            first = _sort_cell(
+                f"{expected} \u2192 {predicted}", tip=f"expected {expected}, predicted {predicted}"
+            )
+            first.setData(INDEX_ROLE, (expected, predicted))
+            self.pairs.setItem(r, 0, first)
+            self.pairs.setItem(r, 1, _sort_cell(str(n), True, key=n))
+            self.pairs.setItem(r, 2, _sort_cell(fmt.percent(top), True, key=top))
         self.misfire_panel.set_subtitle(
-            f"{fmt.count(len(misfires), 'misfire')} \u00b7 click (or Enter) opens one in the sentence view \u00b7 "
-            "Explain (or Ctrl+Enter) on the Explain page"
+            f"{fmt.count(len(misfires), 'misfire')} in {fmt.count(len(rows), 'confusable pair')} \u00b7 click a "
+            "header to sort \u00b7 click (or Enter) opens one in the sentence view \u00b7 Explain (or Ctrl+Enter) "
+            "on the Explain page"
         )
+        self.apply_filter()
+
+    # -- misfire filter ----------------------------------------------------------------------------
+    def set_filter(self, text: str | None = None, pair: tuple[str, str] | None | bool = False) -> None:
+        """Change the search text and/or the pair (``pair=None`` clears it; ``False`` keeps it)."""
+        self.filter = MisfireFilter(
+            self.filter.text if text is None else text, self.filter.pair if pair is False else pair
+        )
+        if text is not None and self.search.text() != text:
+            self.search.blockSignals(True)
+            self.search.setText(text)
+            self.search.blockSignals(False)
+        self.apply_filter()
+
+    def clear_filter(self) -> None:
+        self.set_filter("", None)
+
+    def _search_changed(self, text: str) -> None:
+        self.set_filter(text=text)
+
+    def apply_filter(self) -> None:
+        """Hide the misfire rows the filter rejects; say what is shown."""
+        if self.report is None:
+            return
+        misfires = self.report.evaluation.misfires
+        shown = 0
+        for row in range(self.misfires.rowCount()):
+            k = self._misfire_index(row)
+            ok = k is not None and self.filter.matches(misfires[k])
+            self.misfires.setRowHidden(row, not ok)
+            shown += ok
+        self.filter_label.setText(self.filter.describe(shown, len(misfires)))
+        self.show_all_button.setEnabled(self.filter != MisfireFilter())
+        for row in range(self.pairs.rowCount()):
+            item = self.pairs.item(row, 0)
+            item.setSelected(item.data(INDEX_ROLE) == self.filter.pair)
+
+    def shown_misfires(self) -> list:
+        """The misfires the table shows now, in its order."""
+        if self.report is None:
+            return []
+        out = []
+        for row in range(self.misfires.rowCount()):
+            k = self._misfire_index(row)
+            if k is not None and not self.misfires.isRowHidden(row):
+                out.append(self.report.evaluation.misfires[k])
+        return out
+
+    def _confusion_clicked(self, row: int, col: int) -> None:
+        """A confusion cell: show the misfires of that pair (a diagonal cell: every misfire of the label)."""
+        if self.report is None:
+            return
+        labels = self.report.evaluation.labels
+        if row == col:
+            self.set_filter(text=labels[row], pair=None)
+        else:
+            self.set_filter(pair=(labels[row], labels[col]))
+        self.tabs.setCurrentWidget(self.misfire_tab)
+        self.status.emit(self.filter_label.text())
+
+    def _pair_clicked(self, row: int) -> None:
+        item = self.pairs.item(row, 0)
+        if item is not None:
+            pair = tuple(item.data(INDEX_ROLE))
+            self.set_filter(pair=None if pair == self.filter.pair else pair)
 
     def _fill_heads(self, report: CorpusReport) -> None:
         self._fill_importance(report)
@@ -915,33 +1102,141 @@ class CorpusPage(QWidget):
         self.masks.ask_write_pruned(self, self.lm, self.chosen_mask(), prov)
 
     # -- misfires ----------------------------------------------------------------------------------
+    def _misfire_index(self, row: int) -> int | None:
+        """The report's index of the misfire shown in table row ``row`` (rows move when sorted)."""
+        item = self.misfires.item(row, 0)
+        return None if item is None else int(item.data(INDEX_ROLE))
+
     def _misfire_clicked(self, row: int, column_: int) -> None:
         if column_ != EXPLAIN_COLUMN:
             self.open_misfire(row)
 
     def open_misfire(self, row: int) -> None:
-        """Show misfire ``row`` in the sentence view with its expected label."""
-        if self.report is not None and 0 <= row < len(self.report.evaluation.misfires):
-            m = self.report.evaluation.misfires[row]
+        """Show the misfire in table row ``row`` in the sentence view with its expected label."""
+        k = self._misfire_index(row) if self.report is not None else None
+        if k is not None:
+            m = self.report.evaluation.misfires[k]
             self.open_sentence.emit(m.text, m.expected)
 
     def explain_misfire(self, row: int) -> None:
-        """Show misfire ``row`` on the Explain page with its expected label."""
-        if self.report is not None and 0 <= row < len(self.report.evaluation.misfires):
-            m = self.report.evaluation.misfires[row]
+        """Show the misfire in table row ``row`` on the Explain page with its expected label."""
+        k = self._misfire_index(row) if self.report is not None else None
+        if k is not None:
+            self._explain_index(k)
+
+    def _explain_index(self, k: int) -> None:
+        if self.report is not None and 0 <= k < len(self.report.evaluation.misfires):
+            m = self.report.evaluation.misfires[k]
             self.explain.emit(m.text, m.expected)
 
     # -- export ------------------------------------------------------------------------------------
+    def focused_view(self) -> str:
+        """Which view Ctrl+E exports: the one holding the keyboard focus, else the current tab's main view."""
+        views = {
+            "confusion": [self.confusion],
+            "misfires": [self.misfires, self.pairs, self.search],
+            "importance": [self.importance_map],
+            "similarity": [self.similarity],
+            "pruning": [self.plot],
+        }
+        focus = self.focusWidget()
+        for kind, widgets in views.items():
+            if any(w is focus or (focus is not None and w.isAncestorOf(focus)) for w in widgets):
+                return kind
+        tab = self.tabs.currentIndex()
+        return ("confusion", "misfires", "importance")[tab] if 0 <= tab < 3 else "confusion"
+
     def export_current(self) -> None:
-        """Ask for a folder, then write the whole report there (the CLI's files) in the background."""
+        """Ctrl+E: export the view under focus (figure and CSV); the status bar says what was written."""
+        if self.report is None:
+            self.error.emit("Nothing to export yet: run the corpus analysis first")
+            return
+        if self.exporter is None:
+            self.export_folder()
+            return
+        kind = self.focused_view()
+        try:
+            job = build_export(self.report, kind, self.shown_misfires(), self.exporter.paper())
+        except ValueError as exc:
+            self.error.emit(f"Nothing to export: {exc}")
+            return
+        self.exporter.ask_for(job, EXPORT_KINDS[kind])
+
+    def export_folder(self) -> None:
+        """Ask for a folder, then write the whole run (the CLI's files) there in the background."""
         if self.report is None:
             self.error.emit("Nothing to export yet: run the corpus analysis first")
             return
         start = str(last_folder(self.settings))
-        folder = QFileDialog.getExistingDirectory(self, "Write the corpus report into a folder", start)
+        folder = QFileDialog.getExistingDirectory(self, "Write the corpus run into a folder", start)
         if folder:
             remember_folder(self.settings, Path(folder))
             self.export_report(Path(folder))
+
+    def choose_review_file(self) -> None:
+        """Ask where to write the review report (.pdf or .html), then build it in the background."""
+        if self.report is None:
+            self.error.emit("No review report yet: run the corpus analysis first")
+            return
+        start = last_folder(self.settings) / f"{slug(self.report.model_name, 24)}-review.pdf"
+        path, chosen = QFileDialog.getSaveFileName(
+            self,
+            "Write the review report",
+            str(start),
+            "PDF document (*.pdf);;Web page, one file (*.html)",
+        )
+        if not path:
+            return
+        target = Path(path)
+        if target.suffix.lower() not in (".pdf", ".html"):
+            target = target.with_name(target.name + (".html" if "html" in chosen else ".pdf"))
+        remember_folder(self.settings, target)
+        self.write_review(target)
+
+    def write_review(self, path: Path, *, explain: int | None = None) -> int:
+        """Build the review report of the shown run into ``path`` off the GUI thread; returns the job number.
+
+        The run's files go to a temporary folder first (the report reads a run
+        folder, as ``headcount report`` does); explaining the top misfires holds
+        the model. Progress shows in the phase line; the status bar says where
+        the report went.
+        """
+        import tempfile
+
+        from inspector.corpus.report import write_report
+        from inspector.figures.report.build import DEFAULT_EXPLAINED, write_review
+
+        report, lm = self.report, self.lm
+        if report is None:
+            raise ValueError("nothing to report: no corpus run yet")
+        paper = self.exporter.paper() if self.exporter is not None else "a4"
+        count = DEFAULT_EXPLAINED if explain is None else explain
+        bridge, run = self._bridge, self._run
+
+        def job() -> Path:
+            with tempfile.TemporaryDirectory() as tmp, MODEL_LOCK:
+                write_report(report, tmp, figures=False)
+                return write_review(
+                    tmp,
+                    path,
+                    lm=lm,
+                    paper=paper,
+                    explain=count,
+                    on_progress=lambda _d, _t, what: bridge.phase.emit(run, what),
+                )
+
+        def done(written: object) -> None:
+            self.phase_label.setText(f"Review report written: {Path(written).name}")
+            self.status.emit(f"Exported the review report: {Path(written).name} in {Path(written).parent}")
+
+        self.phase_label.setText("Writing the review report\u2026")
+        return self.runner.submit(
+            "report",
+            job,
+            done,
+            lambda text: self.error.emit(f"Could not write the review report: {text}"),
+            latest_only=False,
+        )
 
     def export_report(self, folder: Path) -> int:
         """Write the report into ``folder`` on the export channel; returns the job number."""

@@ -23,6 +23,7 @@ from inspector.corpus.dataset import LabelledSet, read_labelled
 from inspector.corpus.pruning import PruningCurve, PruningResult, largest_safe_step
 from inspector.corpus.run import (
     CorpusReport,
+    Misfire,
     PhaseProgress,
     ResultCallback,
     StepCallback,
@@ -30,6 +31,7 @@ from inspector.corpus.run import (
     run_corpus,
 )
 from inspector.corpus.settings import CorpusSettings
+from inspector.figures.report.pages import misfire_groups, pair_name
 from inspector.paths import SAMPLE_EVAL, SAMPLE_MODEL
 
 CORPUS_TORCH_THREADS = 1
@@ -343,3 +345,40 @@ def provenance(report: CorpusReport) -> PruneProvenance:
         accuracy_before=pr.accuracy_before if pr else None,
         accuracy_after=pr.accuracy_after if pr else None,
     )
+
+
+# ----------------------------------------------------------------------------- misfires: filter and pairs
+
+
+@dataclass(frozen=True)
+class MisfireFilter:
+    """Which misfires the table shows: a search text and, optionally, one confusable pair."""
+
+    text: str = ""
+    pair: tuple[str, str] | None = None
+    """(expected, predicted), or None for every pair."""
+
+    def matches(self, m: Misfire) -> bool:
+        if self.pair is not None and (m.expected, m.predicted) != self.pair:
+            return False
+        words = self.text.strip().lower().split()
+        haystack = f"{m.row} {m.text} {m.expected} {m.predicted}".lower()
+        return all(w in haystack for w in words)
+
+    def describe(self, shown: int, total: int) -> str:
+        """``Showing 3 of 75 misfires: expected X → predicted Y, matching “boat”`` (or all of them)."""
+        parts = []
+        if self.pair is not None:
+            parts.append(pair_name(*self.pair))
+        if self.text.strip():
+            parts.append(f"matching \u201c{self.text.strip()}\u201d")
+        if not parts:
+            return f"All {fmt.count(total, 'misfire')}, most confident first"
+        return f"Showing {shown} of {fmt.count(total, 'misfire')}: " + ", ".join(parts)
+
+
+def pair_rows(report: CorpusReport) -> list[tuple[tuple[str, str], int, float]]:
+    """(pair, how many misfires, the most confident one's confidence) per confusable pair, largest first."""
+    return [
+        (pair, len(items), items[0].confidence) for pair, items in misfire_groups(report.evaluation.misfires)
+    ]

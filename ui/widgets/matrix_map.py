@@ -21,7 +21,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-from PySide6.QtCore import QPointF, QRectF, QSize, Qt
+from PySide6.QtCore import QPointF, QRectF, QSize, Qt, Signal
 from PySide6.QtGui import QColor, QFont, QFontMetricsF, QPalette, QPen
 from PySide6.QtWidgets import QWidget
 
@@ -72,7 +72,12 @@ class MapLayout:
 
 
 class MatrixMap(HoverView):
-    """Shade ``values`` [rows, cols] with the weight map; optional text per cell and block separators."""
+    """Shade ``values`` [rows, cols] with the weight map; optional text per cell and block separators.
+
+    A click (or Enter on the hovered cell) on a cell emits :attr:`cell_clicked` with its row and column.
+    """
+
+    cell_clicked = Signal(int, int)
 
     def __init__(self, name: str, parent: QWidget | None = None) -> None:
         super().__init__(name, parent)
@@ -232,6 +237,12 @@ class MatrixMap(HoverView):
             names = self.row_names if hit[1] == "row" else self.col_names
             return names[hit[2]]
         return self.describe(*hit)
+
+    def mousePressEvent(self, event) -> None:
+        hit = self.hit_at(event.position().x(), event.position().y())
+        if hit is not None and event.button() == Qt.MouseButton.LeftButton:
+            self.cell_clicked.emit(*hit)
+        super().mousePressEvent(event)
 
     def drawn_text(self) -> list[str]:
         if self.values is None or not self.values.size:

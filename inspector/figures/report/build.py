@@ -90,7 +90,7 @@ def build_sections(
     """Every section of the report, the cover first (its contents list gives each section's first page)."""
     paper = check_paper(paper)
     date = date or _dt.datetime.now().strftime("%Y-%m-%d %H:%M")
-    body = [P.scores(run, paper), P.misfires(run, paper)]
+    body = [P.scores(run, paper), P.misfires(run.evaluation, paper)]
     if explained:
         body.append(P.explanations(explained, paper))
     body += [P.heads(run, paper), P.similarity(run, paper), P.pruning(run, paper), P.appendix(paper)]

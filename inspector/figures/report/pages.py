@@ -15,7 +15,7 @@ from matplotlib.figure import Figure
 from inspector import formatting as fmt
 from inspector import palette
 from inspector.corpus.pruning import CAUTION as PRUNING_CAUTION
-from inspector.corpus.run import Misfire
+from inspector.corpus.run import Evaluation, Misfire
 from inspector.explanation.explain import CAUTION as EXPLAIN_CAUTION
 from inspector.explanation.explain import SentenceExplanation
 from inspector.figures import corpus as plots
@@ -241,13 +241,13 @@ def scores(run: RunFolder, paper: str) -> Section:
     return Section("Scores per intent and the confusion matrix", pages, body, [matrix])
 
 
-def misfires(run: RunFolder, paper: str) -> Section:
-    groups = misfire_groups(run.evaluation.misfires)
+def misfires(evaluation: Evaluation, paper: str, title: str = "Misfires by confusable pair") -> Section:
+    groups = misfire_groups(evaluation.misfires)
     widths = [0.55, 0.85, 0.85]
     header = ["Line", "Confidence", "Expected p", "Utterance"]
     pages: list[Figure] = []
     page = _page(paper)
-    y = _title(page, "Misfires by confusable pair")
+    y = _title(page, title)
     y = page.paragraph(
         MARGIN, y,
         "Each group is one confusable pair: what the utterance should have been, and what the model said. "
@@ -275,7 +275,7 @@ def misfires(run: RunFolder, paper: str) -> Section:
             if y + need > limit:
                 pages.append(page.fig)
                 page = _page(paper)
-                y = _title(page, "Misfires by confusable pair (continued)")
+                y = _title(page, f"{title} (continued)")
             page.text(MARGIN, y, heading + (" (continued)" if start else ""), BODY, weight="bold")
             y += line_height(BODY) + 0.05
             take = []
@@ -297,7 +297,7 @@ def misfires(run: RunFolder, paper: str) -> Section:
         "Each group is one confusable pair; the largest groups first, within a group the most confident "
         "misfire first."
     )
-    return Section("Misfires by confusable pair", pages, intro + "".join(parts))
+    return Section(title, pages, intro + "".join(parts))
 
 
 def explanations(items: Sequence[tuple[str, SentenceExplanation]], paper: str) -> Section:
