@@ -180,7 +180,34 @@ def corpus_run(app, window) -> None:
     wait_until(app, lambda: not window.is_busy())
     window.grab().save(str(DOCS / "corpus_heads.png"))
     page.tabs.setCurrentIndex(0)
-    print("wrote docs/corpus_heads.png")
+    window.grab().save(str(DOCS / "corpus.png"))
+    ev = page.report.evaluation
+    pair = max(
+        ((i, j) for i in range(len(ev.labels)) for j in range(len(ev.labels)) if i != j),
+        key=lambda ij: ev.confusion[ij],
+    )
+    page.confusion.cell_clicked.emit(*pair)  # the largest confusable pair, as a click on its cell
+    wait_until(app, lambda: not window.is_busy())
+    window.grab().save(str(DOCS / "corpus_misfires.png"))
+    page.clear_filter()
+    page.tabs.setCurrentIndex(0)
+    print("wrote docs/corpus.png, docs/corpus_misfires.png, docs/corpus_heads.png")
+    report_page(page.report, window.lm)
+
+
+def report_page(report, lm) -> None:
+    """docs/report_page.png: the review report's explanation page of the most confident misfire (A4)."""
+    from inspector.corpus.report import write_report
+    from inspector.figures.report.build import build_sections, explain_for_report
+    from inspector.figures.report.run_folder import read_run
+
+    with tempfile.TemporaryDirectory() as tmp:
+        write_report(report, tmp, figures=False)
+        run = read_run(tmp)
+        sections = build_sections(run, explain_for_report(lm, run, explain=1), paper="a4")
+    page = next(s for s in sections if s.title.startswith("Explanations")).pages[0]
+    page.savefig(str(DOCS / "report_page.png"), dpi=110, facecolor="white", metadata={"Software": None})
+    print("wrote docs/report_page.png")
 
 
 def two_heads_that_matter(lm, text: str, expected: str) -> tuple[list[tuple[int, int]], float]:

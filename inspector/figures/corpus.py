@@ -39,9 +39,15 @@ def _figure(width: float, height: float) -> Figure:
     return Page(width, height).fig
 
 
-def _caption(fig: Figure, text: str, top: float) -> None:
-    """``text`` wrapped under the body, from ``top`` inches below the figure's top edge."""
+def _caption(fig: Figure, text: str, top: float | None = None) -> None:
+    """``text`` wrapped under the body, from ``top`` inches below the figure's top edge (None: at the foot,
+    wrapped by matplotlib, for figures laid out in figure fractions)."""
     w, h = fig.get_size_inches()
+    if top is None:
+        fig.text(
+            0.01, 0.01, text, fontsize=CAPTION_FONT, ha="left", va="bottom", wrap=True, color=palette.DIM_INK
+        )
+        return
     lines = wrap(text, w - 0.3, CAPTION_FONT)
     for k, line in enumerate(lines):
         fig.text(
