@@ -171,8 +171,10 @@ def _cell_shaded(page: Page, x: float, y: float, w: float, value: float, peak: f
     page.text(x + w / 2, y + ROW / 2, text, CELL_FONT, ha="center", va="center", color=palette.text_on(rgb))
 
 
-def _cell_signed(page: Page, x: float, y: float, w: float, value: float, peak: float, text: str) -> None:
-    number_w = min(0.5 * w, 0.42)
+def _cell_signed(
+    page: Page, x: float, y: float, w: float, value: float, peak: float, text: str, number_w: float
+) -> None:
+    """A signed number right-aligned in the first ``number_w`` inches, then a bar from a zero line."""
     page.text(x + number_w - 0.03, y + ROW / 2, text, CELL_FONT, ha="right", va="center")
     left, width = x + number_w + 0.02, w - number_w - 0.06
     mid = left + width / 2
@@ -244,6 +246,11 @@ def draw_table(
     columns = [c for g in groups for c in g.columns]
     peaks = [float(np.abs(c.values).max()) if c.values.size else 0.0 for c in columns]
     texts = [c.texts() for c in columns]
+    # the numbers get the room their widest entry needs (never run into the bar), the bar the rest
+    number_ws = [
+        min(max(text_width(t, CELL_FONT) for t in col_texts) + 0.08, 0.62 * w) if col_texts else 0.3
+        for col_texts, w in zip(texts, widths)
+    ]
     for n, row in enumerate(rows):
         ry = top + n * ROW
         if n % 2:
@@ -264,7 +271,7 @@ def draw_table(
         for k, col in enumerate(columns):
             value = float(col.values[row])
             if col.signed:
-                _cell_signed(page, lefts[k], ry, widths[k], value, peaks[k], texts[k][row])
+                _cell_signed(page, lefts[k], ry, widths[k], value, peaks[k], texts[k][row], number_ws[k])
             else:
                 _cell_shaded(page, lefts[k], ry, widths[k], value, peaks[k], texts[k][row])
     return top + len(rows) * ROW
@@ -291,10 +298,12 @@ def agreement_rows(ex: SentenceExplanation) -> tuple[list[str], list[list[str]]]
 def hint_lines(ex: SentenceExplanation) -> list[str]:
     shown: list[LabelEvidence | ContrastEvidence] = list(shown_labels(ex))
     shown += [ex.contrast] if ex.contrast is not None else []
-    out = []
+    who: dict[str, list[str]] = {}  # one line per hint, naming every label it was found for
     for ev in shown:
+        name = "contrast" if isinstance(ev, ContrastEvidence) else ev.label
         for hint in ev.hints:
-            out.append(f"{ev.label}: {hint}.")
+            who.setdefault(hint, []).append(name)
+    out = [f"{', '.join(names)}: {hint}." for hint, names in who.items()]
     return out or [f"No disagreement flagged: every defined \u03c1 is at least {AGREEMENT_THRESHOLD}."]
 
 

@@ -59,7 +59,7 @@ CHANNEL = "explain"
 ROLE_BUTTONS = {
     "predicted": "&Predicted",
     "expected": "&Expected",
-    "contrast": "Predicted &vs expected",
+    "contrast": "&Contrast",
     "edited": "&After the rewording",
 }
 """Label switch texts (with their Alt+ keys); the label's name follows."""
@@ -226,6 +226,11 @@ class ExplainPage(QWidget):
             button = QPushButton(ROLE_BUTTONS[role], row_widget)
             button.setCheckable(True)
             button.setAccessibleName(f"Show the evidence for the {ROLES[role].lower()} label")
+            if role == "contrast":
+                button.setToolTip(
+                    "Why the predicted label rather than the expected one: every method on "
+                    "logit(predicted) \u2212 logit(expected)"
+                )
             button.clicked.connect(lambda _c=False, r=role: self.set_role(r))
             self.role_group.addButton(button)
             self.role_buttons[role] = button
@@ -239,9 +244,9 @@ class ExplainPage(QWidget):
         row.addWidget(self.mask_note)
         row.addStretch(1)
         self.colour_key = ColourKey(row_widget)
-        self.colour_key.set_text("Attention lanes:", "0", "lane max")
+        self.colour_key.set_text("Shaded:", "0", "lane max")
         self.sign_key = SignKey(row_widget)
-        self.sign_key.set_text("IG, occlusion:", "\u25c2 against", "for the label \u25b8")
+        self.sign_key.set_text("Signed:", "\u25c2 against", "for \u25b8")
         row.addWidget(self.colour_key)
         row.addWidget(self.sign_key)
         return row_widget

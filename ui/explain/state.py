@@ -48,14 +48,14 @@ CONTRAST_METHODS: tuple[str, ...] = METHODS[:5]
 
 METHOD_TITLES: dict[str, str] = {
     "rollout": "Rollout",
-    "value_weighted": "Value-weighted",
-    "grad_rollout": "Grad-weighted",
-    "integrated_gradients": "Int. Gradients",
-    "occlusion": "Occlusion \u0394p",
-    "occlusion_log_odds": "Occl. \u0394log-odds",
+    "value_weighted": "Value-wtd",
+    "grad_rollout": "Grad-wtd",
+    "integrated_gradients": "IG",
+    "occlusion": "\u0394p",
+    "occlusion_log_odds": "\u0394log-odds",
 }
 """Short column titles (the readable names are in :data:`inspector.explanation.faithfulness.METHOD_LABELS`)."""
-CONTRAST_TITLES: dict[str, str] = {**METHOD_TITLES, "occlusion": "Occl. \u0394gap"}
+CONTRAST_TITLES: dict[str, str] = {**METHOD_TITLES, "occlusion": "\u0394gap"}
 """Column titles of the contrast."""
 
 SIGNED_METHODS = frozenset({"integrated_gradients", "occlusion", "occlusion_log_odds"})
@@ -314,7 +314,7 @@ class ExplainState:
         for method in CONTRAST_METHODS if contrast else METHODS:
             rho = ev.faithfulness.get(method)
             if method.startswith("occlusion"):
-                note = self.occlusion_short(s)
+                note = "occlusion"
                 tip = self.occlusion_caption(s, method if not contrast else "occlusion_gap")
             else:
                 note = f"\u03c1 {fmt.correlation(rho)}"
@@ -359,10 +359,6 @@ class ExplainState:
             f"{fmt.count(ig.steps, 'step')}, {RULE_NAMES[ig.rule]}; completeness error "
             f"{fmt.number(ig.completeness_error, 2, sign=True)} on a logit gap of {fmt.signed(ig.logit_difference)}"
         )
-
-    @staticmethod
-    def occlusion_short(s: SentenceExplanation) -> str:
-        return "word removed" if s.occlusion_mode == "remove" else f"as {s.occlusion_replacement}"
 
     @staticmethod
     def occlusion_caption(s: SentenceExplanation, reading: str = "occlusion") -> str:
