@@ -50,7 +50,7 @@ from ui.explain.page import ExplainPage
 from ui.sentence.export import EXPORT_KINDS, build_export
 from ui.sentence.page import SentencePageWidget
 from ui.sentence.second_model import comparison_export
-from ui.sentence.state import SOURCES
+from ui.sentence.state import SOURCES, classification_index
 from ui.widgets.export import ExportController
 from ui.widgets.panel import MessageBar
 from ui.widgets.worker import MODEL_LOCK, JobRunner
@@ -103,9 +103,10 @@ def analyse_interactively(lm: LoadedModel, text: str, mask: HeadMask | None = No
         torch.set_num_threads(INTERACTIVE_TORCH_THREADS)
     with MODEL_LOCK:
         result = analyze_sentence(lm, text, mask=mask)
-    # Fill the lazily computed views here, on the worker thread, not on first paint in the GUI thread.
-    result.rollout  # noqa: B018
-    result.value_gram  # noqa: B018
+    # Fill what the default views show here, on the worker thread, not on first paint in the GUI
+    # thread: the relevance band's rollout row. The full rollout and the value-weighted measures
+    # are computed only when a view asks for them.
+    result.rollout_row(classification_index(result.special))
     return result
 
 

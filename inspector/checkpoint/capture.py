@@ -266,8 +266,14 @@ class Capture:
     """[layers, hidden] output-projection bias, if values were asked for."""
 
     def sentence(self, b: int = 0) -> np.ndarray:
-        """Attention of sentence ``b`` without padding: [layers, heads, n, n]."""
+        """Attention of sentence ``b`` without padding: [layers, heads, n, n].
+
+        A view (no copy) when the sentence fills its row, as a single sentence always does.
+        """
         idx = self.batch.real_index[b]
+        width = self.attention.shape[-1]
+        if len(idx) == width and (width == 0 or idx[-1] == width - 1):
+            return self.attention[b]
         return self.attention[b][:, :, idx][:, :, :, idx]
 
 
@@ -303,11 +309,35 @@ def run(
             cap.values = torch.stack(
                 [v.reshape(n_b, n_t, lm.num_heads, -1) for v in rec.values], dim=1
             ).numpy()
-            projs = [lm.parts[p].out_proj for p in rec.order]
-            cap.out_weight = gated_out_weight(
-                torch.stack([m.weight for m in projs]).numpy(), active_gates(lm)
-            )
-            cap.out_bias = torch.stack(
-                [m.bias if m.bias is not None else torch.zeros(m.out_features) for m in projs]
-            ).numpy()
+            weights, cap.out_bias = output_projections(lm, rec.order)
+            cap.out_weight = gated_out_weight(weights, active_gates(lm))
     return cap
+
+
+_PROJECTIONS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+"""Per model: the stacked W_O weights and biases, with the key they were stacked under."""
+
+
+def output_projections(lm: LoadedModel, order: Sequence[int]) -> tuple[np.ndarray, np.ndarray]:
+    """Every called layer's output projection, stacked: weights [layers, hidden, heads*d] and biases.
+
+    Stacked once per model and reused (tens of megabytes at BERT-base size, too much to copy
+    per keystroke). The cache key holds each parameter's storage address and in-place version
+    counter, so weights edited in place are stacked afresh.
+    """
+    projs = [lm.parts[p].out_proj for p in order]
+    key = (
+        tuple(order),
+        tuple((t.data_ptr(), t._version) for m in projs for t in (m.weight, m.bias) if t is not None),
+    )
+    hit = _PROJECTIONS.get(lm.model)
+    if hit is not None and hit[0] == key:
+        return hit[1]
+    with torch.no_grad():
+        weights = torch.stack([m.weight for m in projs]).numpy()
+        biases = torch.stack(
+            [m.bias if m.bias is not None else torch.zeros(m.out_features) for m in projs]
+        ).numpy()
+    weights.flags.writeable = biases.flags.writeable = False  # shared by every analysis
+    _PROJECTIONS[lm.model] = (key, (weights, biases))
+    return weights, biases

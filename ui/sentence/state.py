@@ -395,7 +395,7 @@ class SentencePage:
             pieces, where = self.flow, f"all {fmt.count(a.num_layers, 'layer')}"
             note = self.flow_note() or "residual 0.5, heads averaged"
         elif src == "value_head":
-            pieces = a.value_weighted[self.layer, self.head]
+            pieces = a.value_weighted_head(self.layer, self.head)
             where = fmt.head_name(self.layer, self.head)
             note = "weight x norm of the transformed value"
         else:
@@ -445,12 +445,12 @@ class SentencePage:
         note = f"row of '{a.tokens[cls]}'"
         row: np.ndarray | None
         if src == "rollout":
-            row = a.rollout[cls]
+            row = a.rollout_row(cls)
         elif src == "flow":
             row = None if self.flow is None else self.flow[cls]
             note = self.flow_note() or note
         elif src == "value":
-            last = a.layer_value_weighted[-1][cls]
+            last = a.layer_value_weighted_row(-1, cls)
             row = last / max(float(last.sum()), 1e-12)
         else:
             raise KeyError(src)
