@@ -22,18 +22,28 @@ def median_seconds(fn: Callable[[], object], repeats: int = 30, warmup: int = 3)
 
 
 def interleaved_medians(
-    fns: dict[str, Callable[[], object]], repeats: int = 30, warmup: int = 3
+    fns: dict[str, Callable[[], object]],
+    repeats: int = 30,
+    warmup: int = 3,
+    between: Callable[[], object] | None = None,
 ) -> dict[str, float]:
-    """Median time of each function, measured in alternation so machine noise hits all alike."""
+    """Median time of each function, measured in alternation so machine noise hits all alike.
+
+    ``between`` (untimed) runs after every call, e.g. to let background work finish.
+    """
     for fn in fns.values():
         for _ in range(warmup):
             fn()
+            if between is not None:
+                between()
     times: dict[str, list[float]] = {k: [] for k in fns}
     for _ in range(repeats):
         for name, fn in fns.items():
             t0 = time.perf_counter()
             fn()
             times[name].append(time.perf_counter() - t0)
+            if between is not None:
+                between()
     return {k: statistics.median(v) for k, v in times.items()}
 
 

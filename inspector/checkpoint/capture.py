@@ -98,12 +98,22 @@ class AttentionRecorder:
         Also keep each layer's value projection output [batch, tokens, heads*d].
     queries_keys : bool
         Also keep the query and key projection outputs.
+    copy_out : bool
+        For passes without gradients: copy each layer's weights into one
+        [batch, layers, heads, tokens, tokens] tensor as soon as the layer made them, and
+        keep no reference to the model's own tensor (its memory is reused by the next
+        layer). Half the memory and no stacking copy at the end; ``weights`` stays empty.
     """
 
-    def __init__(self, lm: LoadedModel, *, values: bool = False, queries_keys: bool = False) -> None:
+    def __init__(
+        self, lm: LoadedModel, *, values: bool = False, queries_keys: bool = False, copy_out: bool = False
+    ) -> None:
         self.lm = lm
         self.want_values = values
         self.want_qk = queries_keys
+        self.copy_out = copy_out
+        self._out: torch.Tensor | None = None
+        self._filled = 0
         self.weights: list[torch.Tensor] = []
         self.order: list[int] = []
         self.values: list[torch.Tensor] = []
@@ -114,6 +124,7 @@ class AttentionRecorder:
     def _clear(self, *_: object) -> None:
         for store in (self.weights, self.order, self.values, self.queries, self.keys):
             store.clear()
+        self._out, self._filled = None, 0
 
     def _keep(self, store: list[torch.Tensor]):
         def hook(_m: nn.Module, _inp: object, out: torch.Tensor) -> None:
@@ -128,8 +139,17 @@ class AttentionRecorder:
             tensor = out[1] if from_output else inp[0]
             if tensor is None:
                 raise HeadcountError("the model did not return attention weights (eager attention needed)")
-            self.weights.append(tensor)
             self.order.append(part_index)
+            if not self.copy_out:
+                self.weights.append(tensor)
+                return
+            batch = tensor.shape[0] if tensor.dim() == 4 else 1
+            if self._out is None:
+                shape = (batch, self.lm.num_layers, self.lm.num_heads, *tensor.shape[-2:])
+                self._out = torch.empty(shape, dtype=tensor.dtype)
+            if self._filled < self._out.shape[1]:
+                self._out[:, self._filled].copy_(tensor.reshape(batch, self.lm.num_heads, *tensor.shape[-2:]))
+            self._filled += 1
 
         return hook
 
@@ -152,10 +172,11 @@ class AttentionRecorder:
 
     def attention(self) -> torch.Tensor:
         """Stacked weights [batch, layers, heads, tokens, tokens]."""
-        if len(self.weights) != self.lm.num_layers:
-            raise HeadcountError(
-                f"captured {len(self.weights)} attention layers, expected {self.lm.num_layers}"
-            )
+        captured = self._filled if self.copy_out else len(self.weights)
+        if captured != self.lm.num_layers:
+            raise HeadcountError(f"captured {captured} attention layers, expected {self.lm.num_layers}")
+        if self.copy_out:
+            return self._out
         w = self.weights
         batch = w[0].shape[0] if w[0].dim() == 4 else 1
         return torch.stack([x.reshape(batch, self.lm.num_heads, *x.shape[-2:]) for x in w], dim=1)
@@ -297,7 +318,7 @@ def run(
     """
     batch = encode(lm, texts)
     with ExitStack() as stack, torch.no_grad():
-        rec = stack.enter_context(AttentionRecorder(lm, values=values))
+        rec = stack.enter_context(AttentionRecorder(lm, values=values, copy_out=True))
         if gates is not None:
             stack.enter_context(HeadGates(lm, gates))
         out = lm.model(**batch.model_inputs())

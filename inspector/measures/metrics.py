@@ -398,6 +398,59 @@ def _row_passes(a: Any, kmask: Any | None) -> tuple[Any, Any]:
     return ent.reshape(*lead, a.shape[-2]), top.reshape(*lead, a.shape[-2])
 
 
+def _unpadded_metrics(a: Any, special: Any) -> HeadMetrics:
+    """Every metric of attention without padding, ``(..., n, n)``, in one pass per chunk of heads.
+
+    The same definitions as the functions above with every query and key real: per chunk
+    (one head at 512 tokens, so it stays in cache) the row entropies and maxima, the
+    distance ``sum_ij a_ij |i - j|`` (row sums of ``a * D``), the special-token weight
+    ``sum_ij a_ij s_j`` (a matrix-vector product) and the three diagonals; then each is
+    averaged over its queries (n, or the n - 1 queries with a neighbour). Runs in torch on
+    the array's own memory (no copy), in its float dtype.
+    """
+    import torch
+
+    as_numpy = not _is_torch(a)
+    t = torch.from_numpy(np.ascontiguousarray(a)) if as_numpy else a
+    n = t.shape[-1]
+    lead = t.shape[:-2]
+    flat = t.reshape(-1, n, n)
+    k = flat.shape[0]
+    pos = torch.arange(n, dtype=t.dtype, device=t.device)
+    dist = (pos[:, None] - pos[None, :]).abs_()
+    spec = torch.as_tensor(np.asarray(special) if not _is_torch(special) else special).to(t)
+    step = max(1, _CHUNK_ELEMENTS // max(1, n * n))
+    buf = torch.empty((min(step, k), n, n), dtype=t.dtype, device=t.device)
+    rows = torch.empty((4, k, n), dtype=t.dtype, device=t.device)  # entropy, max, distance, special
+    tiny = torch.finfo(t.dtype).tiny
+    for start in range(0, k, step):
+        part = flat[start : start + step]
+        b = buf[: part.shape[0]]
+        torch.clamp_min(part, tiny, out=b).log_().mul_(part)
+        torch.sum(b, -1, out=rows[0, start : start + step])
+        torch.amax(part, -1, out=rows[1, start : start + step])
+        torch.mul(part, dist, out=b)
+        torch.sum(b, -1, out=rows[2, start : start + step])
+        torch.matmul(part, spec, out=rows[3, start : start + step])
+    rows[0].neg_()
+    means = rows.mean(-1)  # over the n real queries
+    diagonals = [torch.diagonal(flat, offset, -2, -1).sum(-1) for offset in (0, -1, 1)]
+    adjacent = max(n - 1, 1)
+    log_n = float(np.log(n)) if n > 1 else 0.0
+    fields = {
+        "entropy": means[0],
+        "entropy_normalized": means[0] / log_n if log_n > 0 else torch.zeros_like(means[0]),
+        "distance": means[2],
+        "special_share": means[3],
+        "self_share": diagonals[0] / max(n, 1),
+        "prev_share": diagonals[1] / adjacent,
+        "next_share": diagonals[2] / adjacent,
+        "confidence": means[1],
+    }
+    shaped = {name: v.reshape(lead) for name, v in fields.items()}
+    return HeadMetrics(**{name: v.numpy() if as_numpy else v for name, v in shaped.items()})
+
+
 def _contract_pairs(a: Any, weights: Any) -> Any:
     """``sum_ij a[..., i, j] weights[..., i, j, c]``; one matrix product when the weights are shared."""
     xp = _xp(a)
@@ -437,12 +490,13 @@ def head_metrics(
 
     Notes
     -----
-    One fused pass per chunk of heads: the entropy ``-sum_j a_ij ln a_ij`` and the row
-    maximum are taken chunk by chunk (a head at a time for long inputs, so the
-    temporaries stay in cache); the five linear metrics are weighted sums over
-    (query, key) pairs, ``sum_ij a_ij W_ijc / N_c``, evaluated for every head by one
-    matrix product (equal to the per-metric functions up to rounding). Nothing is
-    copied when no token is padding; with padding, keys are zeroed chunk by chunk.
+    Without padding (one sentence) every metric comes from one fused pass per chunk of
+    heads, a head at a time for long inputs so the temporaries stay in cache, on the
+    array's own memory (see :func:`_unpadded_metrics`). With padding (batches), the
+    entropy ``-sum_j a_ij ln a_ij`` and the row maximum are taken chunk by chunk with the
+    padded keys zeroed per chunk, and the five linear metrics are weighted sums over
+    (query, key) pairs, ``sum_ij a_ij W_ijc / N_c``, evaluated by one contraction. Both
+    equal the per-metric functions up to rounding.
     In float32 the row entropies carry a relative rounding error of a few 1e-7 per
     term (the logarithm and the pairwise sum); see tests/test_metrics.py.
 
@@ -463,6 +517,8 @@ def head_metrics(
     xp = _xp(a)
     qmask, kmask = _masks(a, mask)
     every_key = mask is None or (bool(mask.all()) if _is_torch(mask) else bool(np.all(mask)))
+    if every_key and np.ndim(special) == 1 and a.ndim >= 2 and not getattr(a, "requires_grad", False):
+        return _unpadded_metrics(a, special)
     ent, top = _row_passes(a, None if every_key else kmask)
     per_query = xp.stack([ent, _per_log_keys(ent, kmask), top])
     entropy, normalized, conf = _mean_over_queries(per_query, qmask)

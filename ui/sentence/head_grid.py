@@ -238,6 +238,8 @@ class HeadGrid(HoverView):
         """Changes only when the drawn matrices (or their colour scale) change, not with the meters."""
         self._codes_key: tuple | None = None
         self._codes: np.ndarray | None = None
+        self._offered: dict[int, tuple[np.ndarray, int, bool, np.ndarray]] = {}
+        """Cells prepared in the background for other matrices: id -> (matrices, cell, per_head, codes)."""
         self.rebuilds = 0
         """How many times the mosaic image was rebuilt (for tests and the benchmark)."""
         self.overlay: np.ndarray | None = None
@@ -398,9 +400,30 @@ class HeadGrid(HoverView):
         """
         key = (self._heads_version, cell)
         if key != self._codes_key or self._codes is None:
-            self._codes = head_codes(self.attention, cell, per_head=self._per_head)
+            offered = self._offered.get(id(self.attention))
+            if (
+                offered is not None
+                and offered[0] is self.attention
+                and offered[1:3] == (cell, self._per_head)
+            ):
+                self._codes = offered[3]
+            else:
+                self._codes = head_codes(self.attention, cell, per_head=self._per_head)
             self._codes_key = key
         return self._codes
+
+    def offer_codes(self, attention: np.ndarray, cell: int, per_head: bool, codes: np.ndarray) -> None:
+        """Keep :func:`head_codes` of ``attention`` built elsewhere (a worker), for when it is shown.
+
+        Only the last few offers are kept; each holds its matrices, so the identity check stays valid.
+        """
+        self._offered[id(attention)] = (attention, cell, per_head, codes)
+        while len(self._offered) > 4:
+            self._offered.pop(next(iter(self._offered)))
+
+    def forget_offers(self) -> None:
+        """Drop cells prepared for matrices that will not be shown (a new sentence)."""
+        self._offered.clear()
 
     def _print_numbers(self, image: QImage, geo: GridGeometry) -> None:
         p = QPainter(image)
