@@ -6,19 +6,29 @@ import argparse
 import json
 import sys
 from pathlib import Path
-from typing import TextIO
+from typing import TYPE_CHECKING, TextIO
 
 import numpy as np
 
 from inspector import formatting as fmt
 from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model, mask_record
 from inspector.errors import HeadcountError
-from inspector.explanation.explain import CAUTION, RULE_NAMES, LabelEvidence, SentenceExplanation
+from inspector.explanation.choices import (
+    BASELINES,
+    CAUTION,
+    DEFAULT_RULE,
+    IG_START_STEPS,
+    IG_TOLERANCE,
+    OCCLUSION_MODES,
+    RULE_NAMES,
+    RULES,
+)
 from inspector.explanation.faithfulness import METHOD_LABELS
-from inspector.explanation.gradients import BASELINES, RULES
-from inspector.explanation.occlusion import OCCLUSION_MODES
-from inspector.explanation.whatif import WhatIfComparison
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
+
+if TYPE_CHECKING:  # torch-free at import: `headcount --help` loads no model library
+    from inspector.explanation.explain import LabelEvidence, SentenceExplanation
+    from inspector.explanation.whatif import WhatIfComparison
 
 COLUMNS = (
     ("rollout", "rollout"),
@@ -52,6 +62,7 @@ def label_json(ev: LabelEvidence) -> dict:
             "attributions": _floats(ig.attributions),
             "baseline": ig.baseline,
             "steps": ig.steps,
+            "steps_tolerance": ig.tolerance,
             "rule": ig.rule,
             "logit_input": ig.logit_input,
             "logit_baseline": ig.logit_baseline,
@@ -124,7 +135,7 @@ def _print_label(ex: SentenceExplanation, ev: LabelEvidence, out: TextIO) -> Non
     rel = ig.completeness_relative
     rel_text = f" (relative {fmt.number(rel, 2)})" if np.isfinite(rel) else ""
     print(
-        f"Integrated Gradients: baseline '{ig.baseline}', {fmt.count(ig.steps, 'step')}, {RULE_NAMES[ig.rule]}; "
+        f"Integrated Gradients: baseline '{ig.baseline}', {ig.steps_text()}, {RULE_NAMES[ig.rule]}; "
         f"logit {fmt.signed(ig.logit_input)} at the input, {fmt.signed(ig.logit_baseline)} at the baseline; "
         f"completeness error {fmt.number(ig.completeness_error, sign=True)}{rel_text}",
         file=out,
@@ -203,14 +214,22 @@ def print_comparison(cmp: WhatIfComparison, out: TextIO) -> None:
 # ---------------------------------------------------------------------------
 
 
+def _whole(text: str) -> int:
+    try:
+        return int(text)
+    except ValueError:
+        raise HeadcountError(f"--steps takes a whole number or 'auto', not '{text}'") from None
+
+
 def cmd_explain(args: argparse.Namespace) -> int:
     from inspector.explanation.explain import explain_sentence, require_classifier
     from inspector.explanation.whatif import compare_sentences
 
     if not args.text or not args.text.strip():
         raise HeadcountError("--text is empty")
-    if args.steps < 2:
-        raise HeadcountError("--steps must be at least 2")
+    steps = None if args.steps.strip().lower() == "auto" else _whole(args.steps)
+    if steps is not None and steps < 2:
+        raise HeadcountError("--steps must be at least 2 (or 'auto')")
     if args.figure:
         from inspector.figures.explanation import check_figure_path
 
@@ -218,7 +237,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
     lm = load_model(args)
     require_classifier(lm)
     options = dict(
-        steps=args.steps,
+        steps=steps,
         occlusion=args.occlusion,
         baseline=args.baseline,
         rule=args.rule,
@@ -261,7 +280,13 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument("--text", required=True, help="the sentence to explain")
     p.add_argument("--expected", metavar="LABEL", help="the label the sentence should have had")
-    p.add_argument("--steps", type=int, default=64, help="Integrated Gradients steps (default 64)")
+    p.add_argument(
+        "--steps",
+        default="auto",
+        metavar="N|auto",
+        help=f"Integrated Gradients steps; 'auto' (default) starts at {IG_START_STEPS} and doubles until "
+        f"the completeness error is within {IG_TOLERANCE * 100:g}%% of the logit difference",
+    )
     p.add_argument(
         "--occlusion",
         choices=OCCLUSION_MODES,
@@ -276,7 +301,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         "or all-zero embeddings (default pad)",
     )
     p.add_argument(
-        "--rule", choices=RULES, default="gauss-legendre", help="integration rule (default gauss-legendre)"
+        "--rule", choices=RULES, default=DEFAULT_RULE, help=f"integration rule (default {DEFAULT_RULE})"
     )
     p.add_argument("--compare", metavar="EDITED", help="an edited sentence to compare with")
     p.add_argument(

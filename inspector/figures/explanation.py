@@ -78,7 +78,7 @@ def _caption(sentences: list[SentenceExplanation], width: float) -> str:
     )
     text = (
         f"Model {ex.model_name}. Each row is scaled to its largest magnitude; orange pushes toward the label, "
-        f"purple away; the two rollout rows do not depend on the label. Integrated Gradients on word embeddings: baseline '{ig.baseline}', {fmt.count(ig.steps, 'step')}, "
+        f"purple away; the two rollout rows do not depend on the label. Integrated Gradients on word embeddings: baseline '{ig.baseline}', {ig.steps_text()}, "
         f"{RULE_NAMES[ig.rule]}, largest completeness error {fmt.number(worst, 2)} (logit units). Occlusion: drop of the label's probability with {occ}. rho: Spearman rank "
         f"correlation with occlusion over words. {CAUTION}"
     )

@@ -73,6 +73,10 @@ def explanation_export(state: ExplainState) -> ExportJob:
     return ExportJob("explain", lambda: explanation_figure(ex, cmp), lambda: table, stem)
 
 
+AUTO_STEPS = 1
+"""The steps box's lowest value, shown as 'auto' (one node is never a valid fixed choice)."""
+
+
 class ExplainPage(QWidget):
     """Explain one sentence (usually a misfire), and compare it with an edited copy."""
 
@@ -175,9 +179,14 @@ class ExplainPage(QWidget):
             self.baseline_box.setItemData(i, BASELINE_TEXT[b], Qt.ItemDataRole.ToolTipRole)
         self.baseline_box.activated.connect(lambda _i: self.run())
         self.steps_box = QSpinBox(box)
-        self.steps_box.setRange(2, 512)
-        self.steps_box.setValue(ExplainRequest("").steps)
+        self.steps_box.setRange(AUTO_STEPS, 512)
+        self.steps_box.setSpecialValueText("auto")  # the lowest value: chosen for completeness within 1%
+        self.steps_box.setValue(ExplainRequest("").steps or AUTO_STEPS)
         self.steps_box.setAccessibleName("Integrated Gradients steps")
+        self.steps_box.setToolTip(
+            "Integrated Gradients steps; 'auto' starts small and doubles until the attributions add up "
+            "to the logit difference within 1%"
+        )
         self.steps_box.editingFinished.connect(self._steps_changed)
 
         grid = control_grid(box)
@@ -328,7 +337,7 @@ class ExplainPage(QWidget):
             expected=self.expected_label(),
             edited=self.edited.text(),
             metric=self.state.metric,
-            steps=self.steps_box.value(),
+            steps=self.chosen_steps(),
             occlusion=self.occlusion_box.currentData(),
             baseline=self.baseline_box.currentData(),
             mask=self.mask,
@@ -365,8 +374,13 @@ class ExplainPage(QWidget):
         if not self.state.ready and not self._runner.is_busy(CHANNEL) and self.entry.text().strip():
             self.run()
 
+    def chosen_steps(self) -> int | None:
+        """The steps box's value; None for 'auto'."""
+        value = self.steps_box.value()
+        return None if value == AUTO_STEPS else value
+
     def _steps_changed(self) -> None:
-        if self.state.ready and self.state.result.request.steps != self.steps_box.value():
+        if self.state.ready and self.state.result.request.steps != self.chosen_steps():
             self.run()
 
     def _result_ready(self, lm: LoadedModel, result: object) -> None:

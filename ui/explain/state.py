@@ -19,6 +19,7 @@ import numpy as np
 from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask
+from inspector.explanation.choices import DEFAULT_RULE
 from inspector.explanation.explain import RULE_NAMES, LabelEvidence, SentenceExplanation, explain_sentence
 from inspector.explanation.faithfulness import AGREEMENT_THRESHOLD, METHOD_LABELS
 from inspector.explanation.whatif import HeadChange, WhatIfComparison, compare_sentences, heads_that_changed
@@ -75,10 +76,11 @@ class ExplainRequest:
     edited: str = ""
     """An edited copy to compare with; empty for no what-if."""
     metric: str = DEFAULT_METRIC
-    steps: int = 64
+    steps: int | None = None
+    """Integrated Gradients steps; None chooses them adaptively (the CLI's 'auto')."""
     occlusion: str = "remove"
     baseline: str = "pad"
-    rule: str = "gauss-legendre"
+    rule: str = DEFAULT_RULE
     top: int = TOP_HEADS
     mask: HeadMask = HeadMask()
     """Heads switched off (on the sentence page) while explaining."""
@@ -312,7 +314,7 @@ class ExplainState:
         baseline = BASELINE_TEXT.get(ig.baseline, ig.baseline)
         return (
             f"Integrated Gradients (logit of {ev.label}): baseline \u2018{ig.baseline}\u2019 ({baseline}), "
-            f"{fmt.count(ig.steps, 'step')}, {RULE_NAMES[ig.rule]}; completeness error "
+            f"{ig.steps_text()}, {RULE_NAMES[ig.rule]}; completeness error "
             f"{fmt.number(ig.completeness_error, 2, sign=True)} on a logit gap of {fmt.signed(ig.logit_difference)}"
         )
 
