@@ -21,7 +21,9 @@ from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask, masked
 from inspector.checkpoint.tokens import make_view
 from inspector.errors import HeadcountError
+from inspector.explanation.choices import CAUTION as CAUTION  # re-exported
 from inspector.explanation.choices import DEFAULT_RULE
+from inspector.explanation.choices import RULE_NAMES as RULE_NAMES  # re-exported
 from inspector.explanation.faithfulness import faithfulness, faithfulness_hints, merge_to_words
 from inspector.explanation.gradients import (
     CLASSIFICATION_POSITION,
