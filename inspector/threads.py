@@ -144,11 +144,33 @@ def set_torch_threads(count: int) -> None:
         torch.set_num_threads(count)
 
 
+_configured: ThreadChoice | None = None
+
+
 def configure(requested: int | None = None) -> ThreadChoice:
     """Choose the thread count (see :func:`choose_threads`) and apply it; returns the choice."""
+    global _configured
     choice = choose_threads(requested)
     apply_threads(choice)
+    _configured = choice
     return choice
+
+
+def current() -> ThreadChoice:
+    """The count :func:`configure` applied, or the one it would choose."""
+    return _configured if _configured is not None else choose_threads()
+
+
+INTERACTIVE_THREADS = 1
+"""Torch threads of the window's per-keystroke jobs (sentence analysis, explanation): one short
+sentence gains little from more, and on a 2-core laptop a second spinning thread competes with
+the GUI thread (7-8 ms instead of ~700 ms per analysis of the sample model on a loaded 2-core
+machine, measured with bench/bench_ui.py)."""
+
+
+def background_job_threads() -> int:
+    """Torch threads of a long window job (a corpus run): the chosen count less one core for the GUI thread."""
+    return max(1, current().count - 1)
 
 
 def help_text() -> str:

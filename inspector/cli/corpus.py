@@ -206,7 +206,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     d = CorpusSettings()
     p.epilog = (
         f"Pruning: {CAUTION} Files: summary.json, heads.csv, similar_pairs.csv, pruning.csv, "
-        "prune_mask.json, and confusion_matrix / head_importance / head_similarity / pruning_curve (.png, .svg)."
+        "prune_mask.json, and confusion_matrix / head_importance / head_similarity / pruning_curve (.png, .svg). "
+        + p.epilog  # the thread rule, set by add_model_command
     )
     p.add_argument("data", metavar="DATA_FILE", help="labelled set: .csv with a header row, or .jsonl")
     p.add_argument(

@@ -23,6 +23,7 @@ from inspector.explanation.choices import DEFAULT_RULE
 from inspector.explanation.explain import RULE_NAMES, LabelEvidence, SentenceExplanation, explain_sentence
 from inspector.explanation.faithfulness import AGREEMENT_THRESHOLD, METHOD_LABELS
 from inspector.explanation.whatif import HeadChange, WhatIfComparison, compare_sentences, heads_that_changed
+from inspector.threads import INTERACTIVE_THREADS, set_torch_threads
 
 METHODS: tuple[str, ...] = ("rollout", "value_weighted", "grad_rollout", "integrated_gradients", "occlusion")
 """The relevance columns, in the order they are drawn (occlusion, the yardstick, last)."""
@@ -62,9 +63,6 @@ RIVALS = 2
 """Runner-up labels named under the original sentence's prediction."""
 TOP_HEADS = 5
 """How many most-changed heads are listed (the CLI's default)."""
-
-INTERACTIVE_TORCH_THREADS = 1
-"""Intra-op threads inside the explain job (see ``ui.main_window.analyse_interactively`` for the measurement)."""
 
 
 @dataclass(frozen=True)
@@ -113,10 +111,7 @@ def compute_explanation(lm: LoadedModel, request: ExplainRequest) -> ExplainResu
     on a loaded 2-core machine a second spinning thread slows the job and the
     GUI thread down (``torch.set_num_threads`` acts on the calling thread).
     """
-    import torch
-
-    if torch.get_num_threads() != INTERACTIVE_TORCH_THREADS:
-        torch.set_num_threads(INTERACTIVE_TORCH_THREADS)
+    set_torch_threads(INTERACTIVE_THREADS)
     if request.has_edit:
         cmp = compare_sentences(
             lm,
