@@ -49,7 +49,11 @@ def main() -> int:
     parser.add_argument("--repeats", type=int, default=5)
     parser.add_argument("--threads", type=int, default=None, help="passed to headcount analyze")
     args = parser.parse_args()
-    launcher = [sys.executable, "-c", "import sys; from ui.launcher import main; raise SystemExit(main(sys.argv[1:]))"]
+    launcher = [
+        sys.executable,
+        "-c",
+        "import sys; from ui.launcher import main; raise SystemExit(main(sys.argv[1:]))",
+    ]
     with tempfile.TemporaryDirectory() as tmp:
         if sample_model_available():
             model, note = SAMPLE_MODEL, "sample model"

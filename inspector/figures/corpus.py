@@ -188,7 +188,9 @@ def pruning_figure(pruning: PruningResult) -> Figure:
         fig,
         f"{pruning.caution} Heads switched off by gates on {fmt.count(n, 'utterance')}"
         + (
-            f", measured every {fmt.count(pruning.every, 'head')}."
+            f", measured at chosen steps ({fmt.count(pruning.passes, 'pass', 'passes')} over the set)."
+            if pruning.every is None
+            else f", measured every {fmt.count(pruning.every, 'head')}."
             if pruning.every > 1
             else ", one head per step."
         ),

@@ -223,8 +223,14 @@ class CorpusPage(QWidget):
             check.setToolTip(f"Simulate removing heads in the \u2018{name}\u2019 order")
             self.order_checks[name] = check
         self.every = QSpinBox(box)
-        self.every.setRange(1, 64)
-        self.every.setValue(defaults.prune_every)
+        self.every.setRange(0, 64)
+        self.every.setSpecialValueText("chosen steps")  # 0: around the tolerance, a few passes
+        self.every.setValue(defaults.prune_every or 0)
+        self.every.setToolTip(
+            f"'chosen steps': a few coarse steps for every order and finer ones where the mask order "
+            f"crosses the tolerance (at most {defaults.prune_passes} passes over the set); "
+            "a number: every that many heads (one pass each)"
+        )
         self.every.setAccessibleName("Measure accuracy every")
         self.every.valueChanged.connect(self._units)
         self._units()
@@ -501,7 +507,7 @@ class CorpusPage(QWidget):
             importance=importance,
             orders=orders,
             max_drop=self.tolerance.value() / 100,
-            prune_every=self.every.value(),
+            prune_every=self.every.value() or None,
         )
         return CorpusRequest(
             path=self.path_edit.text().strip(),
