@@ -1,6 +1,6 @@
 """Window speed: head-mosaic repaint and keystroke-to-views, measured offscreen.
 
-Run:  QT_QPA_PLATFORM=offscreen .venv/bin/python bench/bench_ui.py
+Run:  .venv/bin/python -m bench.bench_ui   (or: .venv/bin/python bench/bench_ui.py; offscreen by default)
 
 1. Head mosaic repaint for a 12-layer x 12-head model at 64 tokens. The model is
    a randomly initialised BERT-base-sized config (hidden 768, 12 x 12) built

@@ -385,7 +385,7 @@ def scan(
     divergence = DivergenceSums(layers * heads)
     rows_total = 0
     gen = torch.Generator().manual_seed(seed)
-    with AttentionRecorder(lm) as rec:
+    with AttentionRecorder(lm, copy_out=True) as rec:  # no stacking copy per batch
         for index in progress.batches(encoded.sorted_batches(batch_size)):
             batch = encoded.batch(index)
             with torch.inference_mode():
