@@ -285,7 +285,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         default="auto",
         metavar="N|auto",
         help=f"Integrated Gradients steps; 'auto' (default) starts at {IG_START_STEPS} and doubles until "
-        f"the completeness error is within {IG_TOLERANCE * 100:g}%% of the logit difference",
+        f"the completeness error is within {fmt.percent(IG_TOLERANCE).replace('%', '%%')} of the logit difference",
     )
     p.add_argument(
         "--occlusion",

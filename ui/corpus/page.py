@@ -845,7 +845,7 @@ class CorpusPage(QWidget):
             self.order_box.setCurrentText(pr.mask_order)
             curve = pr.curve(pr.mask_order)
             self.count_box.setRange(curve.steps[0], len(curve.order))
-            self.count_box.setSingleStep(max(1, report.settings.prune_every))
+            self.count_box.setSingleStep(max(1, report.settings.prune_every or 1))
             self.count_box.setValue(len(pr.removed))
             if pr.max_drop is not None:
                 self.tolerance.setValue(100 * pr.max_drop)

@@ -33,6 +33,7 @@ from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask
 from inspector.errors import HeadcountError
+from inspector.explanation.choices import IG_TOLERANCE
 from inspector.explanation.explain import CAUTION, require_classifier
 from inspector.explanation.gradients import BASELINES
 from inspector.explanation.occlusion import OCCLUSION_MODES
@@ -185,7 +186,7 @@ class ExplainPage(QWidget):
         self.steps_box.setAccessibleName("Integrated Gradients steps")
         self.steps_box.setToolTip(
             "Integrated Gradients steps; 'auto' starts small and doubles until the attributions add up "
-            "to the logit difference within 1%"
+            f"to the logit difference within {fmt.percent(IG_TOLERANCE)}"
         )
         self.steps_box.editingFinished.connect(self._steps_changed)
 
