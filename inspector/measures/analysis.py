@@ -172,7 +172,7 @@ def analyze_sentence(lm: LoadedModel, text: str, *, mask: HeadMask | None = None
         special=cap.batch.special[0],
         word_ids=cap.batch.word_ids[0],
         attention=cap.sentence(0),
-        values=cap.values[0][:, idx],
+        values=cap.values[0][:, idx] if len(idx) != cap.values.shape[2] else cap.values[0],
         out_weight=cap.out_weight,
         out_bias=cap.out_bias,
         prediction=prediction,

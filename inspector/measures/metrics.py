@@ -367,6 +367,9 @@ def _pair_weights(a: Any, qmask: Any, kmask: Any, special: Any) -> tuple[Any, An
 _CHUNK_ELEMENTS = 1 << 18
 """Attention weights per chunk of the row passes (1 MB in float32: one head at 512 tokens),
 so the entropy's temporaries and the row maxima stay in the processor's cache."""
+_ROW_CHUNK = 1 << 17
+"""Attention weights per chunk of the one-sentence pass (half a head at 512 tokens: the chunk
+and its temporary stay in a core's cache; measured fastest of 32 to 512 rows at 512 tokens)."""
 
 
 def _row_passes(a: Any, kmask: Any | None) -> tuple[Any, Any]:
@@ -399,10 +402,10 @@ def _row_passes(a: Any, kmask: Any | None) -> tuple[Any, Any]:
 
 
 def _unpadded_metrics(a: Any, special: Any) -> HeadMetrics:
-    """Every metric of attention without padding, ``(..., n, n)``, in one pass per chunk of heads.
+    """Every metric of attention without padding, ``(..., n, n)``, in one pass per chunk.
 
     The same definitions as the functions above with every query and key real: per chunk
-    (one head at 512 tokens, so it stays in cache) the row entropies and maxima, the
+    (several heads, or a block of one head's rows for long inputs, so it stays in cache) the row entropies and maxima, the
     distance ``sum_ij a_ij |i - j|`` (row sums of ``a * D``), the special-token weight
     ``sum_ij a_ij s_j`` (a matrix-vector product) and the three diagonals; then each is
     averaged over its queries (n, or the n - 1 queries with a neighbour). Runs in torch on
@@ -419,19 +422,22 @@ def _unpadded_metrics(a: Any, special: Any) -> HeadMetrics:
     pos = torch.arange(n, dtype=t.dtype, device=t.device)
     dist = (pos[:, None] - pos[None, :]).abs_()
     spec = torch.as_tensor(np.asarray(special) if not _is_torch(special) else special).to(t)
-    step = max(1, _CHUNK_ELEMENTS // max(1, n * n))
-    buf = torch.empty((min(step, k), n, n), dtype=t.dtype, device=t.device)
     rows = torch.empty((4, k, n), dtype=t.dtype, device=t.device)  # entropy, max, distance, special
     tiny = torch.finfo(t.dtype).tiny
-    for start in range(0, k, step):
-        part = flat[start : start + step]
-        b = buf[: part.shape[0]]
-        torch.clamp_min(part, tiny, out=b).log_().mul_(part)
-        torch.sum(b, -1, out=rows[0, start : start + step])
-        torch.amax(part, -1, out=rows[1, start : start + step])
-        torch.mul(part, dist, out=b)
-        torch.sum(b, -1, out=rows[2, start : start + step])
-        torch.matmul(part, spec, out=rows[3, start : start + step])
+    # Chunks: several whole heads for short inputs, blocks of a head's rows for long ones.
+    heads_per, rows_per = max(1, _ROW_CHUNK // max(1, n * n)), min(n, max(1, _ROW_CHUNK // max(1, n)))
+    buf = torch.empty((min(heads_per, k), rows_per, n), dtype=t.dtype, device=t.device)
+    for h0 in range(0, k, heads_per):
+        for r0 in range(0, n, rows_per):
+            h1, r1 = h0 + heads_per, r0 + rows_per
+            part = flat[h0:h1, r0:r1]
+            b = buf[: part.shape[0], : part.shape[1]]
+            torch.clamp_min(part, tiny, out=b).log_().mul_(part)
+            torch.sum(b, -1, out=rows[0, h0:h1, r0:r1])
+            torch.amax(part, -1, out=rows[1, h0:h1, r0:r1])
+            torch.mul(part, dist[r0:r1], out=b)
+            torch.sum(b, -1, out=rows[2, h0:h1, r0:r1])
+            torch.matmul(part, spec, out=rows[3, h0:h1, r0:r1])
     rows[0].neg_()
     means = rows.mean(-1)  # over the n real queries
     diagonals = [torch.diagonal(flat, offset, -2, -1).sum(-1) for offset in (0, -1, 1)]

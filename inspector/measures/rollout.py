@@ -145,10 +145,12 @@ def rollout_rows(
     on = np.ones((layers, heads)) if heads_on is None else np.asarray(heads_on, dtype=np.float64)
     v = np.zeros((len(rows), n))
     v[np.arange(len(rows)), list(rows)] = 1.0
+    ones = np.ones((n, 1), dtype=att.dtype)
     for layer in range(layers - 1, -1, -1):
         a, w = att[layer], on[layer]
         share = w / w.sum() if w.sum() > 0 else np.zeros_like(w)  # weights of the head mean
-        sums = (1.0 - residual) * (share[:, None] * a.sum(-1, dtype=np.float64)).sum(0) + residual
+        row_sums = np.matmul(a, ones)[..., 0].astype(np.float64)  # [heads, n]; a matrix-vector product is
+        sums = (1.0 - residual) * (share[:, None] * row_sums).sum(0) + residual  # faster than a reduction
         u = v / sums
         per_head = np.matmul(u.astype(a.dtype), a)  # [heads, rows, n]
         mixed = (share[:, None, None] * per_head).sum(0)

@@ -87,13 +87,23 @@ def resample_cells(attention: np.ndarray, cell: int) -> np.ndarray:
 def _block_max(a: np.ndarray, cell: int, axis: int) -> np.ndarray:
     """Maximum over ``cell`` near-equal consecutive blocks along ``axis``.
 
-    Gathers the j-th element of every block for j < k (the longest block) and keeps the running
-    maximum: k vectorised passes, fast even along the last axis (a reduction over a tiny
-    innermost axis is not).
+    Along the last axis it gathers the j-th element of every block for j < k (the longest
+    block) and keeps the running maximum: k vectorised passes, fast where a reduction over a
+    tiny innermost axis is not. Along any other axis each block is reduced in place (whole
+    rows at a time): one pass over the array.
     """
     m = a.shape[axis]
     starts = np.arange(cell) * m // cell
     ends = np.append(starts[1:], m)
+    axis %= a.ndim
+    if axis != a.ndim - 1:
+        shape = list(a.shape)
+        shape[axis] = cell
+        out = np.empty(shape, dtype=a.dtype)
+        before = (slice(None),) * axis
+        for i, (s, e) in enumerate(zip(starts, ends)):
+            np.max(a[(*before, slice(s, e))], axis=axis, out=out[(*before, i)])
+        return out
     out = np.take(a, starts, axis=axis)
     for j in range(1, int((ends - starts).max())):
         np.maximum(out, np.take(a, np.minimum(starts + j, ends - 1), axis=axis), out=out)
