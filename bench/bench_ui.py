@@ -64,7 +64,10 @@ def bench_grid(app) -> tuple[float, float, int]:
     heads, metric = page.head_matrices(), page.metric_values()
     span = metric_range(page.options.metric, metric)
 
-    copies = [heads, heads.copy()]  # new matrices each time: every head is coloured again, as for a new sentence
+    copies = [
+        heads,
+        heads.copy(),
+    ]  # new matrices each time: every head is coloured again, as for a new sentence
 
     def rebuild_and_paint() -> None:
         copies.reverse()
