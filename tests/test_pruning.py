@@ -205,26 +205,14 @@ def test_a_corpus_run_on_a_12_by_12_model_prunes_within_10_passes(tmp_path, mini
 
     Reference: transformers' forward calls counted by a forward pre-hook; the budget from the tracker issue.
     """
-    import transformers
-
     from inspector.checkpoint.loader import load_checkpoint
     from inspector.corpus.run import run_corpus
     from inspector.corpus.settings import CorpusSettings
     from tests.corpus_models import INTENTS, UTTERANCES, load_with_set
+    from tests.families import build_bert
 
-    tok = transformers.AutoTokenizer.from_pretrained(str(minilm_dir), local_files_only=True)
-    config = transformers.BertConfig(
-        vocab_size=len(tok),
-        hidden_size=48,
-        num_hidden_layers=12,
-        num_attention_heads=12,
-        intermediate_size=64,
-        id2label=dict(enumerate(INTENTS)),
-        label2id={k: i for i, k in enumerate(INTENTS)},
-    )
-    torch.manual_seed(0)
-    transformers.BertForSequenceClassification(config).save_pretrained(str(tmp_path / "m"))
-    tok.save_pretrained(str(tmp_path / "m"))
+    shape = dict(hidden_size=48, num_hidden_layers=12, num_attention_heads=12, intermediate_size=64)
+    build_bert(tmp_path / "m", minilm_dir, list(INTENTS), **shape)
     (tmp_path / "data").mkdir()
     _, data = load_with_set(tmp_path / "m", tmp_path / "data")
     lm = load_checkpoint(tmp_path / "m")

@@ -72,23 +72,13 @@ def test_a_512_token_message_on_a_12_by_12_model_exits_with_status_0(tmp_path, m
 
     Reference: POSIX exit status (an abort at exit shows as -6/134, not 0); common practice, no source.
     """
-    import torch
     import transformers
 
-    tok = transformers.AutoTokenizer.from_pretrained(str(minilm_dir), local_files_only=True)
-    config = transformers.BertConfig(
-        vocab_size=len(tok),
-        hidden_size=96,
-        num_hidden_layers=12,
-        num_attention_heads=12,
-        intermediate_size=192,
-        id2label={0: "book_crossing", 1: "timetable"},
-        label2id={"book_crossing": 0, "timetable": 1},
-    )
-    torch.manual_seed(0)
-    folder = tmp_path / "twelve"
-    transformers.BertForSequenceClassification(config).save_pretrained(str(folder))
-    tok.save_pretrained(str(folder))
+    from tests.families import build_bert
+
+    shape = dict(hidden_size=96, num_hidden_layers=12, num_attention_heads=12, intermediate_size=192)
+    folder = build_bert(tmp_path / "twelve", minilm_dir, ["book_crossing", "timetable"], **shape)
+    tok = transformers.AutoTokenizer.from_pretrained(str(folder), local_files_only=True)
     message = "hello I booked a return crossing for two adults and a car last month " * 40
     assert len(tok(message)["input_ids"]) > 512  # cut to the model's 512 positions
     done = _run(["-m", "tests.window_driver", str(folder), message], tmp_path)
