@@ -1,6 +1,6 @@
 """Capture overhead: forward pass with hooks + metrics vs. the bare eager forward pass.
 
-Run: .venv/bin/python -m bench.bench_capture
+Run: .venv/bin/python -m bench.bench_capture   (or: .venv/bin/python bench/bench_capture.py)
 Prints, for each model, the median time of the bare forward pass, of the captured
 forward pass, and of capture + all per-head metrics, as ratios (target: capture
 <= 1.10x the bare eager forward for one sentence).
@@ -8,13 +8,18 @@ forward pass, and of capture + all per-head metrics, as ratios (target: capture
 
 from __future__ import annotations
 
-import torch
+import sys
+from pathlib import Path
 
-from bench.common import interleaved_medians
-from inspector.checkpoint.capture import AttentionRecorder, encode
-from inspector.checkpoint.loader import load_checkpoint
-from inspector.measures.metrics import head_metrics
-from inspector.paths import SAMPLE_MODEL, minilm_dir, sample_model_available
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent))  # also run as a script
+
+import torch  # noqa: E402
+
+from bench.common import interleaved_medians  # noqa: E402
+from inspector.checkpoint.capture import AttentionRecorder, encode  # noqa: E402
+from inspector.checkpoint.loader import load_checkpoint  # noqa: E402
+from inspector.measures.metrics import head_metrics  # noqa: E402
+from inspector.paths import SAMPLE_MODEL, minilm_dir, sample_model_available  # noqa: E402
 
 SENTENCE = "hi, I booked the 07:30 crossing from Port Averly but need to move it to Friday with my van"
 

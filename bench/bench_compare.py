@@ -21,18 +21,22 @@ interleaved repeats, so machine noise hits all variants alike.
 from __future__ import annotations
 
 import argparse
+import sys
+from pathlib import Path
 
-import torch
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent))  # also run as a script
 
-from bench.common import interleaved_medians
-from inspector.checkpoint.loader import load_checkpoint
-from inspector.comparison.pairing import shared_labels
-from inspector.comparison.run import compare_corpus
-from inspector.comparison.settings import ComparisonSettings
-from inspector.corpus.batching import encode_set
-from inspector.corpus.dataset import read_labelled
-from inspector.corpus.run import scan
-from inspector.paths import SAMPLE_EVAL, SAMPLE_MODEL, SAMPLE_RETRAINED
+import torch  # noqa: E402
+
+from bench.common import interleaved_medians  # noqa: E402
+from inspector.checkpoint.loader import load_checkpoint  # noqa: E402
+from inspector.comparison.pairing import shared_labels  # noqa: E402
+from inspector.comparison.run import compare_corpus  # noqa: E402
+from inspector.comparison.settings import ComparisonSettings  # noqa: E402
+from inspector.corpus.batching import encode_set  # noqa: E402
+from inspector.corpus.dataset import read_labelled  # noqa: E402
+from inspector.corpus.run import scan  # noqa: E402
+from inspector.paths import SAMPLE_EVAL, SAMPLE_MODEL, SAMPLE_RETRAINED  # noqa: E402
 
 TARGET = 2.2
 

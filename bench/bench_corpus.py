@@ -1,6 +1,7 @@
 """Corpus analysis speed and memory, as ratios measured within one run.
 
-Run: .venv/bin/python -m bench.bench_corpus [--minilm] [--repeats N] [--threads N]
+Run: .venv/bin/python -m bench.bench_corpus [--minilm] [--at-size] [--repeats N] [--threads N]
+ or: .venv/bin/python bench/bench_corpus.py ...
 
 Model: the bundled sample model on its evaluation set when it exists, else a
 seeded random 4-layer x 6-head BERT classifier (MiniLM tokenizer) on the same
@@ -18,6 +19,12 @@ Printed (targets from the tracker issue):
   (tracemalloc peak of Python-side allocations during the scan, and the process's
   maximum resident set size); growth must stay below 10%.
 
+``--at-size`` times a whole corpus run (scan, importance, pruning simulation with its
+default steps) of a random BERT-base-sized classifier (12 x 12 heads, hidden 768) over
+1,000 utterances of the ferry training set, in bare passes: the run's time divided by
+one bare batched forward pass over the same set (target: under 15 in all; the pruning
+simulation at most 10).
+
 Torch runs on one thread by default (``--threads``): on a shared 2-core machine
 two threads make every timing swing by several times, one thread keeps the
 ratios steady. Timings are medians of interleaved repeats.
@@ -30,16 +37,21 @@ import json
 import subprocess
 import sys
 import tempfile
+import time
 from pathlib import Path
 
-import torch
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent))  # also run as a script
 
-from bench.common import interleaved_medians
-from inspector.checkpoint.loader import load_checkpoint
-from inspector.corpus.batching import encode_set
-from inspector.corpus.dataset import read_labelled
-from inspector.corpus.run import CorpusSettings, importance_pass, label_indices, scan
-from inspector.paths import PROJECT_ROOT, SAMPLE_EVAL, SAMPLE_MODEL, sample_model_available
+import torch  # noqa: E402
+
+from bench.common import BASE_SHAPE, interleaved_medians, load_note, random_bert_classifier  # noqa: E402
+from inspector.checkpoint.loader import load_checkpoint  # noqa: E402
+from inspector.corpus.batching import encode_set  # noqa: E402
+from inspector.corpus.dataset import read_labelled  # noqa: E402
+from inspector.corpus.run import CorpusSettings, importance_pass, label_indices, run_corpus, scan  # noqa: E402
+from inspector.paths import PROJECT_ROOT, SAMPLE_EVAL, SAMPLE_MODEL, sample_model_available  # noqa: E402
+
+SAMPLE_TRAIN = SAMPLE_EVAL.with_name("ferry_train.csv")
 
 BATCH = 32
 
@@ -154,19 +166,77 @@ def report(name: str, r: dict[str, float]) -> None:
     )
 
 
+def at_size(folder: Path, utterances: int = 1000) -> None:
+    """A whole corpus run of a BERT-base-sized random model, in bare passes over the same set."""
+    labels = sorted(set(read_labelled(SAMPLE_TRAIN).labels))
+    lm = load_checkpoint(random_bert_classifier(folder, labels, **BASE_SHAPE))
+    data = read_labelled(SAMPLE_TRAIN, known_labels=lm.labels)
+    data = data.subset(range(min(utterances, len(data))))
+    encoded = encode_set(lm, data.texts)
+    padded = [encoded.batch(i) for i in encoded.sorted_batches(BATCH)]
+
+    def bare() -> float:
+        t0 = time.perf_counter()
+        with torch.inference_mode():
+            for b in padded:
+                lm.model(**b.inputs)
+        return time.perf_counter() - t0
+
+    bare()  # warm
+    before = bare()
+    phases: dict[str, float] = {}
+    marks = {"t": time.perf_counter(), "name": ""}
+
+    def on_phase(name: str) -> None:
+        now = time.perf_counter()
+        if marks["name"]:
+            phases[marks["name"]] = now - marks["t"]
+        marks.update(t=now, name=name)
+
+    t0 = time.perf_counter()
+    report = run_corpus(lm, data, CorpusSettings(batch_size=BATCH), on_phase=on_phase)
+    total = time.perf_counter() - t0
+    phases[marks["name"]] = time.perf_counter() - marks["t"]
+    after = bare()
+    unit = (before + after) / 2
+    print(
+        f"\ncorpus run at size: random 12 x 12 BERT-base-sized classifier, {len(data)} utterances, "
+        f"{int(encoded.lengths.sum())} tokens, batches of {BATCH}"
+    )
+    print(f"  bare pass over the set     {unit:8.1f} s   (before {before:.1f} s, after {after:.1f} s)")
+    for name, seconds in phases.items():
+        print(f"  {name:<26} {seconds:8.1f} s = {seconds / unit:5.2f} bare passes")
+    print(f"  whole run                  {total:8.1f} s = {total / unit:5.2f} bare passes (target < 15)")
+    pr = report.pruning
+    if pr is not None:
+        print(
+            f"  pruning: {pr.passes} accuracy measurements (target <= 10 passes); "
+            f"steps {dict((c.order_name, c.steps) for c in pr.curves)}"
+        )
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeats", type=int, default=7)
     ap.add_argument("--minilm", action="store_true", help="also bench the MiniLM-sized classifier")
     ap.add_argument("--no-memory", action="store_true")
+    ap.add_argument("--at-size", action="store_true", help="only the whole run of a BERT-base-sized model")
     ap.add_argument("--threads", type=int, default=1, help="torch intra-op threads (default: 1)")
     args = ap.parse_args()
     torch.set_num_threads(args.threads)
+    from threadpoolctl import threadpool_limits
+
+    threadpool_limits(args.threads)
     import transformers
 
     transformers.utils.logging.set_verbosity_error()
     transformers.utils.logging.disable_progress_bar()
     print(f"torch threads: {torch.get_num_threads()}; JS rows compared per batch: {CorpusSettings().js_rows}")
+    if args.at_size:
+        with tempfile.TemporaryDirectory() as tmp:
+            at_size(Path(tmp) / "base_sized")
+        print(load_note())
+        return
     with tempfile.TemporaryDirectory() as tmp:
         if sample_model_available():
             model, name = SAMPLE_MODEL, "sample model (ferry_intents)"

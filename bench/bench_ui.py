@@ -1,12 +1,12 @@
 """Window speed: head-mosaic repaint and keystroke-to-views, measured offscreen.
 
-Run:  QT_QPA_PLATFORM=offscreen .venv/bin/python bench/bench_ui.py
+Run:  .venv/bin/python -m bench.bench_ui   (or: .venv/bin/python bench/bench_ui.py; offscreen by default)
 
 1. Head mosaic repaint for a 12-layer x 12-head model at 64 tokens. The model is
    a randomly initialised BERT-base-sized config (hidden 768, 12 x 12) built
    here and saved to a temporary folder with the MiniLM tokenizer (nothing is
    downloaded). Reported: a repaint from the cached mosaic image, and a full
-   rebuild (resample + colour lookup + meters + numbers) followed by a repaint.
+   rebuild for new matrices (resample + colour lookup + meters + numbers) followed by a repaint.
    Target <= 30 ms.
 2. Keystroke to all views updated, on the sample model at 32 tokens (or, until
    it is trained, a random model of the same size): the time
@@ -28,65 +28,21 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
 import numpy as np  # noqa: E402
 
-from bench.common import interleaved_medians, median_seconds  # noqa: E402
+from bench.common import (  # noqa: E402
+    SAMPLE_SHAPE,
+    build_base_sized,
+    interleaved_medians,
+    median_seconds,
+    random_bert_classifier,
+    sentence_with_tokens,
+)
 
 GRID_TARGET_MS = 30.0
 KEYSTROKE_TARGET_MS = 100.0
-WORDS = (
-    "please could you tell me whether the late ferry from orlestow to quillhaven is still running tonight "
-    "because the weather looks rough and my car is booked on it with two bikes on the roof rack and a dog "
-    "in the back who gets seasick on long crossings so I would rather change to the morning sailing if that "
-    "costs nothing extra and keeps the same cabin"
-).split()
 
 
 def median_ms(fn, repeats: int, warmup: int = 3) -> float:
     return 1000.0 * median_seconds(fn, repeats=repeats, warmup=warmup)
-
-
-def sentence_with_tokens(lm, target: int, offset: int = 0) -> str:
-    """A sentence that tokenises to exactly ``target`` tokens (specials included), if the words allow."""
-    from inspector.checkpoint.capture import encode
-
-    words: list[str] = []
-    for w in WORDS[offset:] + WORDS[:offset]:
-        trial = " ".join([*words, w])
-        if len(encode(lm, [trial]).tokens[0]) > target:
-            break
-        words.append(w)
-    return " ".join(words)
-
-
-SAMPLE_SHAPE = {"hidden_size": 96, "num_hidden_layers": 4, "num_attention_heads": 6, "intermediate_size": 384}
-"""The sample model's shape (sample_models/scripts/train.py), for stand-ins while it is not trained."""
-
-
-def random_bert_classifier(folder: Path, labels: list[str], *, seed: int = 0, **config: object) -> Path:
-    """Save a seeded, randomly initialised BERT classifier with the MiniLM tokenizer into ``folder``."""
-    import torch
-    import transformers
-
-    from inspector.paths import minilm_dir
-
-    tok = transformers.AutoTokenizer.from_pretrained(str(minilm_dir()), local_files_only=True)
-    cfg = transformers.BertConfig(
-        vocab_size=len(tok),
-        id2label=dict(enumerate(labels)),
-        label2id={k: i for i, k in enumerate(labels)},
-        **config,
-    )
-    torch.manual_seed(seed)
-    transformers.BertForSequenceClassification(cfg).save_pretrained(str(folder))
-    tok.save_pretrained(str(folder))
-    return folder
-
-
-def build_base_sized(folder: Path) -> Path:
-    """BERT-base-sized: 12 layers x 12 heads, hidden 768, 14 labels."""
-    labels = [f"intent_{i}" for i in range(14)]
-    return random_bert_classifier(
-        folder, labels, hidden_size=768, num_hidden_layers=12, num_attention_heads=12, intermediate_size=3072
-    )
 
 
 def bench_grid(app) -> tuple[float, float, int]:
@@ -108,8 +64,14 @@ def bench_grid(app) -> tuple[float, float, int]:
     heads, metric = page.head_matrices(), page.metric_values()
     span = metric_range(page.options.metric, metric)
 
+    copies = [
+        heads,
+        heads.copy(),
+    ]  # new matrices each time: every head is coloured again, as for a new sentence
+
     def rebuild_and_paint() -> None:
-        grid.set_data(heads, metric, span, per_head=True)
+        copies.reverse()
+        grid.set_data(copies[0], metric, span, per_head=True)
         grid.repaint()
 
     rebuild_and_paint()

@@ -54,3 +54,18 @@ def build_checkpoint(
     model.save_pretrained(str(folder))
     tok.save_pretrained(str(folder))
     return folder
+
+
+def build_bert(folder: Path, tokenizer_dir: Path, labels: list[str], **shape: int) -> Path:
+    """Save a seeded random BERT classifier of any shape (``hidden_size``, ``num_hidden_layers`` ...) into ``folder``."""
+    tok = transformers.AutoTokenizer.from_pretrained(str(tokenizer_dir), local_files_only=True)
+    config = transformers.BertConfig(
+        vocab_size=len(tok),
+        id2label=dict(enumerate(labels)),
+        label2id={k: i for i, k in enumerate(labels)},
+        **shape,
+    )
+    torch.manual_seed(0)
+    transformers.BertForSequenceClassification(config).save_pretrained(str(folder))
+    tok.save_pretrained(str(folder))
+    return folder

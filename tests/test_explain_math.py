@@ -21,7 +21,12 @@ from inspector.explanation.faithfulness import (
     merge_to_words,
     spearman,
 )
-from inspector.explanation.gradients import grad_weighted_rollout, integrate_path, quadrature
+from inspector.explanation.gradients import (
+    grad_weighted_rollout,
+    integrate_adaptively,
+    integrate_path,
+    quadrature,
+)
 from inspector.explanation.occlusion import occluded_rows
 from inspector.explanation.rewording import heads_that_changed, word_changes
 
@@ -215,3 +220,56 @@ def test_word_changes_align_an_edit():
     changes = word_changes(["i", "want", "to", "cancel", "it"], ["I", "want", "to", "change", "it", "now"])
     edits = [(c.op, c.original, c.edited) for c in changes if c.op != "equal"]
     assert edits == [("replace", (3, 4), (3, 4)), ("insert", (5, 5), (5, 6))]
+
+
+def test_adaptive_steps_double_until_completeness_holds():
+    """Adaptive Integrated Gradients returns the first of 8, 16, 32 ... nodes whose completeness error is within
+    1% of F(x) - F(x'), and the same attributions as a fixed-step call with that many nodes.
+
+    Reference: Sundararajan, Taly & Yan 2017, sec. 5 (increase the steps until the attributions add up to the
+    score difference); the closed form F(x) - F(x') of F(z) = exp(sum_i c_i z_i) and F(z) = sin(c . z).
+    The trapezoid rule converges slowly (error ~ 1/steps^2), so it needs several doublings here.
+    """
+    torch.manual_seed(0)
+    x = torch.randn(5, 3, dtype=torch.float64)
+    base = torch.zeros_like(x)
+    c = torch.linspace(0.5, 1.5, 15, dtype=torch.float64).reshape(5, 3)
+
+    def forward(z: torch.Tensor) -> torch.Tensor:
+        s = (z * c).sum((1, 2))
+        return torch.stack([torch.exp(s), torch.sin(3 * s)], -1)
+
+    tries = {"gauss-legendre": (8, 16, 32, 64, 128), "clenshaw-curtis": (9, 17, 33, 65, 129)}
+    tries["trapezoid"] = tries["clenshaw-curtis"]  # nested rules: 8, 16, 32 ... intervals
+    for rule, counts in tries.items():
+        got = integrate_adaptively(forward, x, base, [0, 1], rule=rule, tolerance=0.01)
+        assert got.tolerance == 0.01 and got.steps in counts
+        assert got.complete_within(0.01)
+        exact = forward(x[None])[0] - forward(base[None])[0]
+        np.testing.assert_allclose(got.output_input - got.output_baseline, exact.numpy(), rtol=1e-12)
+        assert np.all(np.abs(got.completeness_error) <= 0.01 * np.maximum(np.abs(exact.numpy()), 0.1))
+        fixed = integrate_path(forward, x, base, [0, 1], steps=got.steps, rule=rule)
+        np.testing.assert_allclose(got.attributions, fixed.attributions, rtol=1e-12)
+        for fewer_steps in counts[: counts.index(got.steps)]:
+            fewer = integrate_path(forward, x, base, [0, 1], steps=fewer_steps, rule=rule)
+            assert not fewer.complete_within(0.01), (rule, fewer_steps)
+    slow = integrate_adaptively(forward, x, base, [0, 1], rule="trapezoid", tolerance=0.01)
+    assert slow.steps > 9  # the trapezoid rule needed at least one doubling
+    capped = integrate_adaptively(forward, x, base, [0, 1], rule="trapezoid", tolerance=1e-12, max_steps=33)
+    assert capped.steps == 33 and not capped.complete_within(1e-12)
+
+
+@pytest.mark.parametrize("steps", [2, 3, 5, 9, 17])
+def test_clenshaw_curtis_is_exact_up_to_its_degree_and_nested(steps):
+    """Reference: Clenshaw & Curtis 1960: N + 1 Chebyshev extreme points integrate polynomials of degree <= N
+    exactly (closed form int_0^1 a^p da = 1 / (p + 1)); the nodes for N intervals are among those for 2N;
+    for a smooth function the rule agrees with scipy.integrate.quad."""
+    alphas, weights = quadrature(steps, "clenshaw-curtis")
+    assert alphas[0] == 0.0 and alphas[-1] == 1.0 and np.all(np.diff(alphas) > 0)
+    for p in range(steps):
+        np.testing.assert_allclose((weights * alphas**p).sum(), 1.0 / (p + 1), rtol=1e-12, atol=1e-14)
+    finer, _ = quadrature(2 * steps - 1, "clenshaw-curtis")
+    assert set(alphas.tolist()) <= set(finer.tolist())
+    a33, w33 = quadrature(33, "clenshaw-curtis")
+    ref, _ = scipy.integrate.quad(lambda a: math.cos(5 * a) * math.exp(a), 0.0, 1.0)
+    assert abs((w33 * np.cos(5 * a33) * np.exp(a33)).sum() - ref) < 1e-12

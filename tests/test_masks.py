@@ -240,7 +240,7 @@ def test_corpus_with_mask_runs_the_masked_model_and_starts_the_curves_at_the_mas
     out = tmp_path / "report"
     code, stdout, _ = _cli(
         capsys, "corpus", str(folder), str(data), "--out", str(out), "--mask", str(path), "--json",
-        "--no-figures", "--quiet", "--orders", "importance,random", "--max-drop", "0.5",
+        "--no-figures", "--quiet", "--orders", "importance,random", "--max-drop", "0.5", "--prune-every", "1",
     )  # fmt: skip
     summary = json.loads(stdout)
     assert code == 0 and summary["mask"] == {"0": [1], "1": [3]}

@@ -5,7 +5,10 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import pytest
+import scipy.special
 import scipy.stats
+import torch
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
@@ -106,3 +109,85 @@ def test_metric_bounds_property(raw, real):
     for share in (m.special_share, m.self_share, m.prev_share, m.next_share, m.confidence):
         assert np.all((share >= -eps) & (share <= 1 + eps))
     assert np.all((m.distance >= -eps) & (m.distance <= real - 1 + eps))
+
+
+def test_float32_metrics_at_512_tokens_match_float64_references():
+    """Fused float32 metrics of a 512-token input against float64 references.
+
+    Reference: scipy.special.entr (-p ln p, summed per row in float64) for the entropy;
+    the same function computed in float64 (``dtype=np.float64``) for the other metrics.
+    Tolerance, worked out from float32 rounding (unit roundoff u = 2**-24 = 6.0e-8): each row
+    entropy sums 512 terms of one sign, each term rounded about three times (logarithm, product,
+    storage), and numpy's pairwise sum adds about log2(512) = 9 roundings, so the relative
+    error is at most about (3 + 9) u = 7.2e-7 of the row entropy; we allow 2e-6. The linear
+    metrics are float32 matrix products over n^2 = 262,144 pairs; blocked BLAS summation keeps
+    their relative error near log2(n^2) u = 1.1e-6; we allow 1e-5.
+    """
+    rng = np.random.default_rng(12)
+    n = 512
+    att = _random_attention(rng, (2, 3, n, n)).astype(np.float32)
+    special = np.zeros(n, dtype=bool)
+    special[[0, n - 1]] = True
+    got = metrics.head_metrics(att, special)
+    assert got.entropy.dtype == np.float32
+    ref_rows = scipy.special.entr(att.astype(np.float64)).sum(-1)
+    np.testing.assert_allclose(got.entropy, ref_rows.mean(-1), rtol=2e-6)
+    np.testing.assert_allclose(got.entropy_normalized, ref_rows.mean(-1) / math.log(n), rtol=2e-6)
+    ref = metrics.head_metrics(att, special, dtype=np.float64)
+    assert ref.entropy.dtype == np.float64
+    for name in metrics.METRIC_NAMES:
+        np.testing.assert_allclose(got.get(name), ref.get(name), rtol=1e-5, err_msg=name)
+
+
+def test_padding_is_masked_chunk_by_chunk_like_the_unpadded_rows():
+    """Metrics of a padded head equal the metrics of its real block alone (chunked key masking).
+
+    Reference: scipy.stats.entropy on the real rows and real keys only; the definitions in
+    inspector.measures.metrics (padding never counts) applied to the unpadded block.
+    """
+    rng = np.random.default_rng(4)
+    n, real = 12, 7
+    att = np.zeros((5, 4, n, n))
+    att[..., :real] = _random_attention(rng, (5, 4, n, real))
+    att[..., real:, :] = rng.random((5, 4, n - real, n))  # garbage in padded query rows
+    mask = np.arange(n) < real
+    special = np.zeros(n, dtype=bool)
+    special[0] = True
+    padded = metrics.head_metrics(att, special, mask)
+    alone = metrics.head_metrics(att[..., :real, :real], special[:real])
+    for name in metrics.METRIC_NAMES:
+        np.testing.assert_allclose(padded.get(name), alone.get(name), rtol=1e-12, err_msg=name)
+    ref = scipy.stats.entropy(att[..., :real, :real], axis=-1).mean(-1)
+    np.testing.assert_allclose(padded.entropy, ref, rtol=1e-12)
+
+
+@pytest.mark.parametrize("n", [1, 2, 9, 40])
+def test_one_sentence_route_equals_the_per_metric_functions(n):
+    """Without padding, head_metrics' fused per-head pass equals each metric's own function.
+
+    Reference: the single-metric functions of inspector.measures.metrics (checked against SciPy and
+    closed forms above), in float64, on random heads plus one-hot and uniform heads (exact zeros
+    exercise 0 ln 0 = 0), for numpy and torch input.
+    """
+    rng = np.random.default_rng(n)
+    att = _random_attention(rng, (2, 3, n, n))
+    att[0, 0] = np.eye(n)[rng.integers(n, size=n)]
+    att[0, 1] = 1.0 / n
+    special = np.zeros(n, dtype=bool)
+    special[0] = True
+    expected = {
+        "entropy": metrics.head_entropy(att),
+        "entropy_normalized": metrics.head_entropy(att, normalize=True),
+        "distance": metrics.mean_distance(att),
+        "special_share": metrics.share_on(att, special),
+        "self_share": metrics.offset_share(att, 0),
+        "prev_share": metrics.offset_share(att, -1),
+        "next_share": metrics.offset_share(att, 1),
+        "confidence": metrics.confidence(att),
+    }
+    got = metrics.head_metrics(att, special)
+    as_torch = metrics.head_metrics(torch.from_numpy(att), torch.from_numpy(special))
+    for name in metrics.METRIC_NAMES:
+        assert got.get(name).shape == (2, 3)
+        np.testing.assert_allclose(got.get(name), expected[name], rtol=1e-12, atol=1e-15, err_msg=name)
+        np.testing.assert_allclose(as_torch.get(name).numpy(), expected[name], rtol=1e-12, atol=1e-15)

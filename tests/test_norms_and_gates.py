@@ -113,3 +113,28 @@ def test_gates_are_differentiable(minilm):
         down = minilm.model(**batch.model_inputs()).last_hidden_state[0, 0].sum()
     fd = float((up - down) / (2 * eps))
     assert abs(fd - float(gates.grad[2, 5])) <= 0.02 * abs(fd) + 1e-3
+
+
+def test_analysis_computes_only_what_is_asked_and_agrees_with_the_full_arrays(minilm):
+    """Rows and single heads computed on demand equal the rows and heads of the full arrays.
+
+    Reference: attention_rollout (Abnar & Zuidema 2020), layer_value_weighted and
+    value_weighted_attention (Kobayashi et al. 2020), all on all-MiniLM-L6-v2's captured attention;
+    nothing larger than asked for is computed (the full arrays are absent until requested).
+    """
+    from inspector.measures.analysis import analyze_sentence
+    from inspector.measures.rollout import attention_rollout
+
+    a = analyze_sentence(minilm, TEXTS[1])
+    row = a.rollout_row(0)
+    vw_row = a.layer_value_weighted_row(-1, 0)
+    head = a.value_weighted_head(2, 5)
+    assert not {"rollout", "value_gram", "layer_value_weighted", "value_weighted"} & set(vars(a))
+    np.testing.assert_allclose(row, attention_rollout(a.attention)[0], rtol=1e-5, atol=1e-7)
+    values, weight = a.values.astype(np.float64), a.out_weight.astype(np.float64)
+    att = a.attention.astype(np.float64)
+    np.testing.assert_allclose(vw_row, layer_value_weighted(att, values, weight)[-1, 0], rtol=1e-4, atol=1e-6)
+    np.testing.assert_allclose(
+        head, value_weighted_attention(att, values, weight)[2, 5], rtol=1e-4, atol=1e-7
+    )
+    np.testing.assert_allclose(a.layer_value_weighted[-1, 0], vw_row, rtol=1e-6)

@@ -12,11 +12,14 @@ from inspector.checkpoint.capture import HeadGates
 from inspector.corpus.batching import encode_set
 from inspector.corpus.pruning import (
     PruningCurve,
+    coarse_steps,
     duplicates_order,
+    gates_for,
     importance_order,
     largest_safe_step,
     make_order,
     mask_json,
+    measure_adaptively,
     random_order,
     step_counts,
 )
@@ -133,3 +136,100 @@ def test_simulation_measures_every_k_heads_from_the_unpruned_accuracy(tiny):
     assert c.fractions[0] == 0 and c.fractions[-1] == 1
     sub = simulate_pruning(lm, encoded, gold, orders, batch_size=4, every=4, subset=np.array([0, 5, 6, 17]))
     assert sub[0].utterances == 4
+
+
+def test_chosen_steps_bracket_the_tolerance_within_the_pass_budget():
+    """Coarse steps for every order, bisection along the mask order where it crosses the tolerance; never more
+    passes than the budget, never the same set of heads twice, every value the evaluation's own.
+
+    Reference: worked example with a known accuracy curve (monotone, so the largest safe step is known in
+    closed form: 0.9 - 0.001 * max(0, k - 50) stays within 0.01 of 0.9 up to k = 60); bisection halves the
+    bracket per pass (common practice, no source).
+    """
+    heads = [(l, h) for l in range(12) for h in range(12)]
+    orders = {"importance": heads, "random": heads[::-1]}
+    calls: list[tuple[int, frozenset]] = []
+
+    def evaluate(removed):
+        calls.append((len(removed), frozenset(removed)))
+        k = len(removed)
+        return 0.9 - 0.001 * max(0, k - 50) if removed[:1] == [heads[0]] else 0.9 - 0.004 * k
+
+    for budget in (10, 20):
+        calls.clear()
+        measured, passes = measure_adaptively(
+            orders, "importance", 0.9, evaluate, max_drop=0.01, budget=budget
+        )
+        assert passes == len(calls) <= budget and len({c[1] for c in calls}) == len(calls)
+        imp = measured["importance"]
+        assert set(coarse_steps(144)) <= set(imp) and set(coarse_steps(144)) <= set(measured["random"])
+        for name, points in measured.items():
+            for k, acc in points.items():
+                assert acc == (0.9 if k == 0 else evaluate(orders[name][:k]))
+        curve = PruningCurve("importance", heads, list(imp), list(imp.values()), 1)
+        safe = largest_safe_step(curve, 0.01)
+        first_fail = min(k for k in imp if k > safe)
+        assert safe <= 60 < first_fail
+        assert first_fail - safe <= (3 if budget == 10 else 1)
+    assert safe == 60
+
+
+def test_adaptive_curve_equals_the_step_by_step_evaluation(tiny):
+    """Every measured point of the adaptive simulation equals the accuracy of predict() with that prefix of the
+    order switched off, on the same utterances.
+
+    Reference: accuracy recomputed here step by step from predict() (mean of prediction == gold), the
+    evaluation every earlier version of the simulation made at every step.
+    """
+    lm, data, encoded, gold = tiny
+    orders = {
+        "random": random_order(lm.num_layers, lm.num_heads, 3),
+        "importance": random_order(lm.num_layers, lm.num_heads, 4),
+    }
+    curves = simulate_pruning(lm, encoded, gold, orders, batch_size=4, every=None, max_drop=0.0)
+    for c in curves:
+        assert c.steps[0] == 0 and len(c.steps) > 2
+        for k, acc in zip(c.steps, c.accuracy):
+            idx, pred = predict(
+                lm,
+                encoded.sorted_batches(4),
+                encoded,
+                gates=gates_for(c.order[:k], lm.num_layers, lm.num_heads),
+            )
+            assert acc == float(np.mean(pred == gold[idx])), (c.order_name, k)
+
+
+def test_a_corpus_run_on_a_12_by_12_model_prunes_within_10_passes(tmp_path, minilm_dir):
+    """The whole pruning phase of a corpus run on a 12-layer x 12-head model costs at most 10 passes over the set,
+    counted as forward calls of the model during that phase.
+
+    Reference: transformers' forward calls counted by a forward pre-hook; the budget from the tracker issue.
+    """
+    from inspector.checkpoint.loader import load_checkpoint
+    from inspector.corpus.run import run_corpus
+    from inspector.corpus.settings import CorpusSettings
+    from tests.corpus_models import INTENTS, UTTERANCES, load_with_set
+    from tests.families import build_bert
+
+    shape = dict(hidden_size=48, num_hidden_layers=12, num_attention_heads=12, intermediate_size=64)
+    build_bert(tmp_path / "m", minilm_dir, list(INTENTS), **shape)
+    (tmp_path / "data").mkdir()
+    _, data = load_with_set(tmp_path / "m", tmp_path / "data")
+    lm = load_checkpoint(tmp_path / "m")
+    settings = CorpusSettings(batch_size=4, orders=("importance", "random", "duplicates"))
+    phase = {"now": ""}
+    calls = {"pruning": 0}
+
+    def count(*_):
+        if phase["now"] == "pruning":
+            calls["pruning"] += 1
+
+    handle = lm.model.register_forward_pre_hook(count)
+    try:
+        report = run_corpus(lm, data, settings, on_phase=lambda name: phase.update(now=name))
+    finally:
+        handle.remove()
+    batches = len(encode_set(lm, data.texts).sorted_batches(4))
+    assert len(UTTERANCES) == len(data) and calls["pruning"] % batches == 0
+    assert calls["pruning"] // batches == report.pruning.passes <= 10
+    assert any("passes over the set" in note for note in report.notes)

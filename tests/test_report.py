@@ -91,6 +91,28 @@ def test_pdf_report_pages_sizes_and_text(run_dir, summary, tmp_path, capsys):
     assert f"page {expected} of {expected}" in text
 
 
+def test_run_with_chosen_pruning_steps_reads_back(run_dir, tmp_path):
+    """A run whose pruning steps were chosen within the pass budget (the default) reads back whole.
+
+    Reference: the run's own summary.json (a round trip: the steps and passes written are the ones read).
+    """
+    import json
+    import shutil
+
+    from inspector.figures.report.run_folder import read_run
+
+    out = tmp_path / "run"
+    data = run_dir.parent / "slice.csv"
+    argv = ["corpus", str(SAMPLE_MODEL), str(data), "--out", str(out), "--quiet", "--no-figures"]
+    assert main([*argv, "--batch-size", "16"]) == 0
+    info = json.loads((out / "summary.json").read_text(encoding="utf-8"))["pruning"]
+    assert info["measured_every"] is None and info["passes"] >= 1
+    pruning = read_run(out).pruning
+    assert pruning.every is None and pruning.passes == info["passes"]
+    assert [list(c.steps) for c in pruning.curves] == list(info["measured_steps"].values())
+    shutil.rmtree(out)
+
+
 def test_letter_report_without_the_model(run_dir, summary, tmp_path):
     """--paper letter --explain 0 needs no model: Letter pages, no explanation pages.
 

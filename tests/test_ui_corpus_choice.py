@@ -49,13 +49,17 @@ def data(classifier, tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def report(classifier, data) -> CorpusReport:
-    return run_corpus(classifier[1], data, CorpusSettings(orders=("importance", "random"), max_drop=0.0))
+    return run_corpus(
+        classifier[1], data, CorpusSettings(orders=("importance", "random"), max_drop=0.0, prune_every=1)
+    )
 
 
 def test_tolerance_along_the_curve_gives_what_a_new_run_with_that_tolerance_chooses(classifier, data, report):
     """Reference: run_corpus itself with the other tolerance (its rule, Michel et al. 2019 curves), run again
     from scratch: moving the tolerance on the stored curve must choose the same heads and accuracy."""
-    rerun = run_corpus(classifier[1], data, CorpusSettings(orders=("importance", "random"), max_drop=0.2))
+    rerun = run_corpus(
+        classifier[1], data, CorpusSettings(orders=("importance", "random"), max_drop=0.2, prune_every=1)
+    )
     choice = choose_by_tolerance(report.pruning, "importance", 0.2)
     assert list(choice.heads) == rerun.pruning.removed
     assert choice.accuracy == pytest.approx(rerun.pruning.accuracy_after)

@@ -127,7 +127,7 @@ def test_open_explanation_holds_the_core_numbers_and_the_cli_agrees(
 
     Reference: inspector.explanation.explain.explain_sentence on the same checkpoint and input (checked in
     tests/test_explain.py against transformers' logits, SciPy's Spearman rho and IG completeness),
-    and the command line ``headcount explain --json`` (same defaults: 64 steps, pad baseline, remove).
+    and the command line ``headcount explain --json`` (same defaults: adaptive steps, pad baseline, remove).
     """
     page = explain_and_wait(qtbot, window, TEXT, misfire)
     assert window.pages.currentWidget() is page
@@ -153,7 +153,8 @@ def test_open_explanation_holds_the_core_numbers_and_the_cli_agrees(
             ev = core.evidence(label)
         ig = ev.integrated_gradients
         caption = page.original.captions.text()
-        assert "64 steps" in caption and "\u2018pad\u2019" in caption and "removed" in caption
+        assert ig.tolerance == 0.01 and ig.steps_text() in caption
+        assert "\u2018pad\u2019" in caption and "removed" in caption
         shown_error = float(caption.split("completeness error ")[1].split()[0].replace("\u2212", "-"))
         assert shown_error == pytest.approx(ig.completeness_error, rel=0.06, abs=5e-8)
         for hint in ev.hints:

@@ -23,7 +23,10 @@ TIMEOUT_MS = 180_000
 def drive(sentences: list[str]) -> None:
     """Type each sentence once the previous one is shown in every view; close the window after the last."""
     app = QApplication.instance()
-    window = next(w for w in app.topLevelWidgets() if type(w).__name__ == "MainWindow")
+    window = next((w for w in app.topLevelWidgets() if type(w).__name__ == "MainWindow"), None)
+    if window is None:  # the start-up window is still up while torch and transformers load
+        QTimer.singleShot(50, lambda: drive(sentences))
+        return
     page = window.sentence_page
     queue = list(sentences)
     typed: list[str] = []

@@ -3,6 +3,8 @@
 With ``QT_QPA_PLATFORM=offscreen`` the window runs without a display (tests,
 screenshots); ``--screenshot FILE`` renders it offscreen at ``--size`` once the
 chosen ``--page`` is ready, saves the picture and exits (see :mod:`ui.screenshot`).
+A start-up window shows at once while torch and transformers load (:mod:`ui.startup`);
+``--threads`` sets the thread count (:mod:`inspector.threads`).
 """
 
 from __future__ import annotations
@@ -17,9 +19,11 @@ from pathlib import Path
 from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication
 
+from inspector import threads
 from inspector.cli.window import add_window_arguments
 from inspector.paths import default_model
 from ui.binding_check import binding_warning
+from ui.startup import show_while_loading
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -68,13 +72,18 @@ def run_window(argv: Sequence[str]) -> int:
     warning = binding_warning()
     if warning:
         print(warning, file=sys.stderr)
+    try:
+        threads.configure(args.threads)
+    except ValueError as exc:
+        print(f"headcount: error: {exc}", file=sys.stderr)
+        return 2
     scratch = tempfile.TemporaryDirectory() if args.screenshot else None
     # A picture run leaves the user's settings (recent models, folders) alone.
     settings = (
         QSettings(str(Path(scratch.name) / "settings.ini"), QSettings.Format.IniFormat) if scratch else None
     )
-    window = build_window(args, settings)
-    window.show()
+    model = Path(args.model) if args.model else default_model()
+    window = show_while_loading(app, model, lambda: build_window(args, settings))
     if args.size and (window.width(), window.height()) != tuple(args.size):
         print(
             f"headcount: the window cannot be {args.size[0]}x{args.size[1]}; "

@@ -45,13 +45,14 @@ from inspector.figures.paper import PAPER_NAMES
 from inspector.figures.sentence import CAUTION
 from inspector.measures.analysis import Prediction, SentenceAnalysis, analyze_sentence, predict_sentence
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
+from inspector.threads import INTERACTIVE_THREADS, set_torch_threads
 from ui.compare.view import ComparisonView
 from ui.corpus.page import CorpusPage
 from ui.explain.page import ExplainPage
 from ui.sentence.export import EXPORT_KINDS, build_export
 from ui.sentence.page import SentencePageWidget
 from ui.sentence.second_model import comparison_export
-from ui.sentence.state import SOURCES
+from ui.sentence.state import SOURCES, classification_index
 from ui.widgets.export import ExportController
 from ui.widgets.panel import MessageBar
 from ui.widgets.worker import MODEL_LOCK, JobRunner
@@ -86,28 +87,20 @@ SHORTCUTS_HELP = """<table cellspacing=4>
 </table>"""
 
 
-INTERACTIVE_TORCH_THREADS = 1
-"""Intra-op threads for the per-keystroke analysis (set in the worker thread only)."""
-
-
 def analyse_interactively(lm: LoadedModel, text: str, mask: HeadMask | None = None) -> SentenceAnalysis:
     """Analyse one sentence for the window, on the calling (worker) thread.
 
-    One torch thread: a single short sentence gains little from more, and on a
-    2-core laptop a second spinning thread competes with the GUI thread for the
-    cores; measured in bench/bench_ui.py (7-8 ms instead of ~700 ms for the
-    sample-sized model on a loaded 2-core machine). ``torch.set_num_threads``
-    acts on the calling thread here (OpenMP), so other jobs keep their setting.
+    With :data:`inspector.threads.INTERACTIVE_THREADS` torch threads (see there why one);
+    ``torch.set_num_threads`` acts on the calling thread here (OpenMP), so other jobs keep
+    their setting.
     """
-    import torch
-
-    if torch.get_num_threads() != INTERACTIVE_TORCH_THREADS:
-        torch.set_num_threads(INTERACTIVE_TORCH_THREADS)
+    set_torch_threads(INTERACTIVE_THREADS)
     with MODEL_LOCK:
         result = analyze_sentence(lm, text, mask=mask)
-    # Fill the lazily computed views here, on the worker thread, not on first paint in the GUI thread.
-    result.rollout  # noqa: B018
-    result.value_gram  # noqa: B018
+    # Fill what the default views show here, on the worker thread, not on first paint in the GUI
+    # thread: the relevance band's rollout row. The full rollout and the value-weighted measures
+    # are computed only when a view asks for them.
+    result.rollout_row(classification_index(result.special))
     return result
 
 

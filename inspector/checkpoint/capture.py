@@ -98,12 +98,22 @@ class AttentionRecorder:
         Also keep each layer's value projection output [batch, tokens, heads*d].
     queries_keys : bool
         Also keep the query and key projection outputs.
+    copy_out : bool
+        For passes without gradients: copy each layer's weights into one
+        [batch, layers, heads, tokens, tokens] tensor as soon as the layer made them, and
+        keep no reference to the model's own tensor (its memory is reused by the next
+        layer). Half the memory and no stacking copy at the end; ``weights`` stays empty.
     """
 
-    def __init__(self, lm: LoadedModel, *, values: bool = False, queries_keys: bool = False) -> None:
+    def __init__(
+        self, lm: LoadedModel, *, values: bool = False, queries_keys: bool = False, copy_out: bool = False
+    ) -> None:
         self.lm = lm
         self.want_values = values
         self.want_qk = queries_keys
+        self.copy_out = copy_out
+        self._out: torch.Tensor | None = None
+        self._filled = 0
         self.weights: list[torch.Tensor] = []
         self.order: list[int] = []
         self.values: list[torch.Tensor] = []
@@ -114,6 +124,7 @@ class AttentionRecorder:
     def _clear(self, *_: object) -> None:
         for store in (self.weights, self.order, self.values, self.queries, self.keys):
             store.clear()
+        self._out, self._filled = None, 0
 
     def _keep(self, store: list[torch.Tensor]):
         def hook(_m: nn.Module, _inp: object, out: torch.Tensor) -> None:
@@ -128,8 +139,17 @@ class AttentionRecorder:
             tensor = out[1] if from_output else inp[0]
             if tensor is None:
                 raise HeadcountError("the model did not return attention weights (eager attention needed)")
-            self.weights.append(tensor)
             self.order.append(part_index)
+            if not self.copy_out:
+                self.weights.append(tensor)
+                return
+            batch = tensor.shape[0] if tensor.dim() == 4 else 1
+            if self._out is None:
+                shape = (batch, self.lm.num_layers, self.lm.num_heads, *tensor.shape[-2:])
+                self._out = torch.empty(shape, dtype=tensor.dtype)
+            if self._filled < self._out.shape[1]:
+                self._out[:, self._filled].copy_(tensor.reshape(batch, self.lm.num_heads, *tensor.shape[-2:]))
+            self._filled += 1
 
         return hook
 
@@ -152,10 +172,11 @@ class AttentionRecorder:
 
     def attention(self) -> torch.Tensor:
         """Stacked weights [batch, layers, heads, tokens, tokens]."""
-        if len(self.weights) != self.lm.num_layers:
-            raise HeadcountError(
-                f"captured {len(self.weights)} attention layers, expected {self.lm.num_layers}"
-            )
+        captured = self._filled if self.copy_out else len(self.weights)
+        if captured != self.lm.num_layers:
+            raise HeadcountError(f"captured {captured} attention layers, expected {self.lm.num_layers}")
+        if self.copy_out:
+            return self._out
         w = self.weights
         batch = w[0].shape[0] if w[0].dim() == 4 else 1
         return torch.stack([x.reshape(batch, self.lm.num_heads, *x.shape[-2:]) for x in w], dim=1)
@@ -266,8 +287,14 @@ class Capture:
     """[layers, hidden] output-projection bias, if values were asked for."""
 
     def sentence(self, b: int = 0) -> np.ndarray:
-        """Attention of sentence ``b`` without padding: [layers, heads, n, n]."""
+        """Attention of sentence ``b`` without padding: [layers, heads, n, n].
+
+        A view (no copy) when the sentence fills its row, as a single sentence always does.
+        """
         idx = self.batch.real_index[b]
+        width = self.attention.shape[-1]
+        if len(idx) == width and (width == 0 or idx[-1] == width - 1):
+            return self.attention[b]
         return self.attention[b][:, :, idx][:, :, :, idx]
 
 
@@ -291,7 +318,7 @@ def run(
     """
     batch = encode(lm, texts)
     with ExitStack() as stack, torch.no_grad():
-        rec = stack.enter_context(AttentionRecorder(lm, values=values))
+        rec = stack.enter_context(AttentionRecorder(lm, values=values, copy_out=True))
         if gates is not None:
             stack.enter_context(HeadGates(lm, gates))
         out = lm.model(**batch.model_inputs())
@@ -303,11 +330,35 @@ def run(
             cap.values = torch.stack(
                 [v.reshape(n_b, n_t, lm.num_heads, -1) for v in rec.values], dim=1
             ).numpy()
-            projs = [lm.parts[p].out_proj for p in rec.order]
-            cap.out_weight = gated_out_weight(
-                torch.stack([m.weight for m in projs]).numpy(), active_gates(lm)
-            )
-            cap.out_bias = torch.stack(
-                [m.bias if m.bias is not None else torch.zeros(m.out_features) for m in projs]
-            ).numpy()
+            weights, cap.out_bias = output_projections(lm, rec.order)
+            cap.out_weight = gated_out_weight(weights, active_gates(lm))
     return cap
+
+
+_PROJECTIONS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+"""Per model: the stacked W_O weights and biases, with the key they were stacked under."""
+
+
+def output_projections(lm: LoadedModel, order: Sequence[int]) -> tuple[np.ndarray, np.ndarray]:
+    """Every called layer's output projection, stacked: weights [layers, hidden, heads*d] and biases.
+
+    Stacked once per model and reused (tens of megabytes at BERT-base size, too much to copy
+    per keystroke). The cache key holds each parameter's storage address and in-place version
+    counter, so weights edited in place are stacked afresh.
+    """
+    projs = [lm.parts[p].out_proj for p in order]
+    key = (
+        tuple(order),
+        tuple((t.data_ptr(), t._version) for m in projs for t in (m.weight, m.bias) if t is not None),
+    )
+    hit = _PROJECTIONS.get(lm.model)
+    if hit is not None and hit[0] == key:
+        return hit[1]
+    with torch.no_grad():
+        weights = torch.stack([m.weight for m in projs]).numpy()
+        biases = torch.stack(
+            [m.bias if m.bias is not None else torch.zeros(m.out_features) for m in projs]
+        ).numpy()
+    weights.flags.writeable = biases.flags.writeable = False  # shared by every analysis
+    _PROJECTIONS[lm.model] = (key, (weights, biases))
+    return weights, biases

@@ -93,15 +93,64 @@ def apply_view(attention: np.ndarray, view: TokenView) -> np.ndarray:
     Clark et al. (2019), sec. 4.1 (word-level attention maps: sum over the
     attended-to pieces, mean over the attending pieces); common practice.
     """
+    attention = np.asarray(attention)
     n = attention.shape[-1]
-    m = len(view.groups)
-    keys = np.zeros((n, m), dtype=attention.dtype)
-    queries = np.zeros((m, n), dtype=attention.dtype)
-    for w, g in enumerate(view.groups):
-        keys[g, w] = 1.0
-        queries[w, g] = 1.0 / len(g)
-    out = queries @ attention @ keys
-    if sum(len(g) for g in view.groups) < n:
+    groups = view.groups
+    sizes = np.array([len(g) for g in groups])
+    out = _sum_groups(attention, groups, axis=-2)  # queries first: the rows shrink before the gathers
+    multi = np.flatnonzero(sizes > 1)
+    if multi.size:
+        if np.shares_memory(out, attention):
+            out = out.copy()
+        out[..., multi, :] /= sizes[multi].astype(out.dtype)[:, None]
+    out = _sum_groups(out, groups, axis=-1)
+    if sizes.sum() < n:
         total = out.sum(-1, keepdims=True)
         out = np.divide(out, total, out=np.zeros_like(out), where=total > 0)
     return out
+
+
+def _sum_groups(a: np.ndarray, groups: list[list[int]], axis: int) -> np.ndarray:
+    """Sum ``a`` over each group's positions along ``axis`` (the ``W = Q A K`` products of :func:`apply_view`).
+
+    Groups are visited by rank within the group: the first piece of every group, then the
+    second piece of the groups that have one, and so on. Rows (any axis but the last) are
+    gathered and added where they belong. Along the last axis, where scattered additions
+    are slow, the groups are ordered longest first, so the groups that have an r-th piece
+    are a prefix and every step is one gather and one slice addition; a final gather
+    restores the groups' order. Single-piece groups
+    over a contiguous run of positions are a plain slice (no copy until the division).
+    Floating-point sums of a word's pieces, in piece order.
+    """
+    axis = axis % a.ndim
+    firsts = np.array([g[0] for g in groups], dtype=np.intp)
+    sizes = np.array([len(g) for g in groups], dtype=np.intp)
+    before = (slice(None),) * axis
+    if (
+        sizes.size
+        and sizes.max() == 1
+        and np.array_equal(firsts, np.arange(firsts[0], firsts[0] + len(firsts)))
+    ):
+        out = a[(*before, slice(int(firsts[0]), int(firsts[0]) + len(firsts)))]
+        return out if np.issubdtype(out.dtype, np.floating) else out.astype(np.float64)
+    if axis != a.ndim - 1:  # whole rows move: add each rank's rows where they belong
+        out = np.take(a, firsts, axis=axis)
+        if not np.issubdtype(out.dtype, np.floating):
+            out = out.astype(np.float64)
+        for rank in range(1, int(sizes.max(initial=1))):
+            sel = np.flatnonzero(sizes > rank)
+            out[(*before, sel)] += np.take(a, [groups[w][rank] for w in sel], axis=axis)
+        return out
+    order = np.argsort(-sizes, kind="stable")
+    out = np.take(a, firsts[order], axis=axis)
+    if not np.issubdtype(out.dtype, np.floating):
+        out = out.astype(np.float64)
+    for rank in range(1, int(sizes.max(initial=1))):
+        count = int((sizes > rank).sum())
+        pieces = [groups[w][rank] for w in order[:count]]
+        out[(*before, slice(0, count))] += np.take(a, pieces, axis=axis)
+    if np.array_equal(order, np.arange(len(order))):
+        return out
+    inverse = np.empty_like(order)
+    inverse[order] = np.arange(len(order))
+    return np.take(out, inverse, axis=axis)

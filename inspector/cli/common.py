@@ -16,13 +16,16 @@ def load_model(args: argparse.Namespace):
 
 def add_model_command(sub: argparse._SubParsersAction, name: str, help_text: str) -> argparse.ArgumentParser:
     """Add a sub-command whose first argument is a checkpoint folder."""
-    p = sub.add_parser(name, help=help_text, description=help_text)
+    from inspector.threads import help_text as threads_help
+
+    p = sub.add_parser(name, help=help_text, description=help_text, epilog=threads_help())
     p.add_argument("model", metavar="MODEL_DIR", help="checkpoint folder (config.json + safetensors)")
     p.add_argument(
         "--allow-pickle",
         action="store_true",
         help="read *.bin weights with torch's weights-only loader when no safetensors exist",
     )
+    add_threads_option(p)
     return p
 
 
@@ -47,3 +50,16 @@ def load_mask(args: argparse.Namespace, lm):
 def mask_record(mask) -> dict[str, list[int]] | None:
     """What a command's JSON output records under ``mask``: the mask file's document, or None."""
     return None if mask is None else mask.to_json()
+
+
+def add_threads_option(p: argparse.ArgumentParser) -> None:
+    """``--threads N``: the one thread count for torch and numpy's BLAS (see :mod:`inspector.threads`)."""
+    from inspector.threads import ENV_VAR
+
+    p.add_argument(
+        "--threads",
+        type=int,
+        metavar="N",
+        help=f"CPU threads for torch and numpy's BLAS (default: {ENV_VAR} if set, else the cores "
+        "this process may use)",
+    )

@@ -46,6 +46,7 @@ def settings_from_args(args: argparse.Namespace) -> CorpusSettings:
         importance=not args.no_importance,
         orders=orders,
         prune_every=args.prune_every,
+        prune_passes=args.prune_passes,
         prune_subset=args.prune_subset,
         max_drop=args.max_drop,
         remove=args.remove,
@@ -206,7 +207,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     d = CorpusSettings()
     p.epilog = (
         f"Pruning: {CAUTION} Files: summary.json, heads.csv, similar_pairs.csv, pruning.csv, "
-        "prune_mask.json, and confusion_matrix / head_importance / head_similarity / pruning_curve (.png, .svg)."
+        "prune_mask.json, and confusion_matrix / head_importance / head_similarity / pruning_curve (.png, .svg). "
+        + p.epilog  # the thread rule, set by add_model_command
     )
     p.add_argument("data", metavar="DATA_FILE", help="labelled set: .csv with a header row, or .jsonl")
     p.add_argument(
@@ -245,7 +247,17 @@ def register(sub: argparse._SubParsersAction) -> None:
         type=int,
         default=d.prune_every,
         metavar="K",
-        help="measure accuracy after every K removed heads (default: 1, exact)",
+        help="measure accuracy after every K removed heads (default: at steps chosen around the tolerance, "
+        "see --prune-passes)",
+    )
+    p.add_argument(
+        "--prune-passes",
+        type=int,
+        default=d.prune_passes,
+        metavar="N",
+        help=f"passes over the set the chosen steps may cost at most (default: {d.prune_passes}): a quarter, "
+        "half and three quarters of the heads for every order, then halving where the mask order's "
+        "accuracy crosses the tolerance",
     )
     p.add_argument(
         "--prune-subset",

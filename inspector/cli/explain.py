@@ -6,26 +6,34 @@ import argparse
 import json
 import sys
 from pathlib import Path
-from typing import TextIO
+from typing import TYPE_CHECKING, TextIO
 
 import numpy as np
 
 from inspector import formatting as fmt
 from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model, mask_record
 from inspector.errors import HeadcountError
-from inspector.explanation.explain import (
+from inspector.explanation.choices import (
+    BASELINES,
     CAUTION,
+    DEFAULT_RULE,
+    IG_START_STEPS,
+    IG_TOLERANCE,
+    OCCLUSION_MODES,
     RULE_NAMES,
-    ContrastEvidence,
-    IntegratedGradientsResult,
-    LabelEvidence,
-    SentenceExplanation,
+    RULES,
 )
 from inspector.explanation.faithfulness import METHOD_LABELS
-from inspector.explanation.gradients import BASELINES, RULES
-from inspector.explanation.occlusion import OCCLUSION_MODES
-from inspector.explanation.rewording import RewordingComparison
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
+
+if TYPE_CHECKING:  # torch-free at import: `headcount --help` loads no model library
+    from inspector.explanation.explain import (
+        ContrastEvidence,
+        IntegratedGradientsResult,
+        LabelEvidence,
+        SentenceExplanation,
+    )
+    from inspector.explanation.rewording import RewordingComparison
 
 COLUMNS = (
     ("rollout", "rollout"),
@@ -54,6 +62,7 @@ def ig_json(ig: IntegratedGradientsResult) -> dict:
         "attributions": _floats(ig.attributions),
         "baseline": ig.baseline,
         "steps": ig.steps,
+        "steps_tolerance": ig.tolerance,
         "rule": ig.rule,
         "logit_input": ig.logit_input,
         "logit_baseline": ig.logit_baseline,
@@ -159,7 +168,7 @@ def _print_ig(ig: IntegratedGradientsResult, what: str, out: TextIO) -> None:
     rel = ig.completeness_relative
     rel_text = f" (relative {fmt.number(rel, 2)})" if np.isfinite(rel) else ""
     print(
-        f"Integrated Gradients: baseline '{ig.baseline}', {fmt.count(ig.steps, 'step')}, {RULE_NAMES[ig.rule]}; "
+        f"Integrated Gradients: baseline '{ig.baseline}', {ig.steps_text()}, {RULE_NAMES[ig.rule]}; "
         f"{what} {fmt.signed(ig.logit_input)} at the input, {fmt.signed(ig.logit_baseline)} at the baseline; "
         f"completeness error {fmt.number(ig.completeness_error, sign=True)}{rel_text}",
         file=out,
@@ -256,14 +265,22 @@ def print_comparison(cmp: RewordingComparison, out: TextIO) -> None:
 # ---------------------------------------------------------------------------
 
 
+def _whole(text: str) -> int:
+    try:
+        return int(text)
+    except ValueError:
+        raise HeadcountError(f"--steps takes a whole number or 'auto', not '{text}'") from None
+
+
 def cmd_explain(args: argparse.Namespace) -> int:
     from inspector.explanation.explain import explain_sentence, require_classifier
     from inspector.explanation.rewording import compare_rewording
 
     if not args.text or not args.text.strip():
         raise HeadcountError("--text is empty")
-    if args.steps < 2:
-        raise HeadcountError("--steps must be at least 2")
+    steps = None if args.steps.strip().lower() == "auto" else _whole(args.steps)
+    if steps is not None and steps < 2:
+        raise HeadcountError("--steps must be at least 2 (or 'auto')")
     if args.figure:
         from inspector.figures.explanation import check_figure_path
 
@@ -271,7 +288,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
     lm = load_model(args)
     require_classifier(lm)
     options = dict(
-        steps=args.steps,
+        steps=steps,
         occlusion=args.occlusion,
         baseline=args.baseline,
         rule=args.rule,
@@ -315,7 +332,13 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument("--text", required=True, help="the sentence to explain")
     p.add_argument("--expected", metavar="LABEL", help="the label the sentence should have had")
-    p.add_argument("--steps", type=int, default=64, help="Integrated Gradients steps (default 64)")
+    p.add_argument(
+        "--steps",
+        default="auto",
+        metavar="N|auto",
+        help=f"Integrated Gradients steps; 'auto' (default) starts at {IG_START_STEPS} and doubles until "
+        f"the completeness error is within {fmt.percent(IG_TOLERANCE).replace('%', '%%')} of the logit difference",
+    )
     p.add_argument(
         "--occlusion",
         choices=OCCLUSION_MODES,
@@ -330,7 +353,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         "or all-zero embeddings (default pad)",
     )
     p.add_argument(
-        "--rule", choices=RULES, default="gauss-legendre", help="integration rule (default gauss-legendre)"
+        "--rule", choices=RULES, default=DEFAULT_RULE, help=f"integration rule (default {DEFAULT_RULE})"
     )
     p.add_argument(
         "--compare",

@@ -11,6 +11,7 @@ import argparse
 import sys
 from collections.abc import Callable, Sequence
 
+from inspector import threads
 from inspector.cli import analyze, compare, corpus, explain, prune, report, window
 from inspector.cli.common import EXIT_USER_ERROR
 from inspector.errors import HeadcountError
@@ -32,6 +33,7 @@ def build_parser() -> argparse.ArgumentParser:
         prog="headcount",
         description="Look inside transformer-encoder classifiers, head by head (CPU, offline). "
         "With no command (or 'open MODEL_DIR'), opens the window.",
+        epilog=threads.help_text(),
     )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for register in COMMANDS:
@@ -45,6 +47,11 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = parser.parse_args(argv)
     if not getattr(args, "func", None):
         parser.print_help()
+        return EXIT_USER_ERROR
+    try:
+        threads.configure(getattr(args, "threads", None))
+    except ValueError as exc:
+        print(f"headcount: error: {exc}", file=sys.stderr)
         return EXIT_USER_ERROR
     try:
         return int(args.func(args))

@@ -14,6 +14,7 @@ import sys
 from pathlib import Path
 
 from inspector.errors import HeadcountError
+from inspector.figures.report import DEFAULT_EXPLAINED
 
 
 def cmd_report(args: argparse.Namespace) -> int:
@@ -61,8 +62,6 @@ def cmd_report(args: argparse.Namespace) -> int:
 
 def register(sub: argparse._SubParsersAction) -> None:
     """Add ``report RUN_DIR --out FILE`` to the command line."""
-    from inspector.figures.report.build import DEFAULT_EXPLAINED
-
     help_text = "the printable review report of a corpus run folder (PDF, or one self-contained HTML file)"
     p = sub.add_parser("report", help=help_text, description=help_text)
     p.add_argument("run_dir", metavar="RUN_DIR", help="a folder written by 'headcount corpus'")

@@ -11,7 +11,9 @@ from __future__ import annotations
 import argparse
 import re
 
+from inspector.cli.common import add_threads_option
 from inspector.errors import HeadcountError
+from inspector.threads import help_text as threads_help
 
 PAGES = ("sentence", "explain", "corpus")
 """The pages ``--page`` can show in a picture."""
@@ -63,6 +65,8 @@ def add_window_arguments(p: argparse.ArgumentParser) -> argparse.ArgumentParser:
         metavar="FILE",
         help="with --page corpus: the labelled evaluation set to run (default: the sample set for the sample model)",
     )
+    add_threads_option(p)
+    p.epilog = threads_help()
     return p
 
 

@@ -21,7 +21,7 @@ Orders (which head goes next):
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -146,6 +146,125 @@ def masked_first(order: Sequence[Head], already_off: Sequence[Head]) -> list[Hea
     return off + [h for h in order if h not in gone]
 
 
+DEFAULT_PASSES = 10
+"""Most passes over the evaluation set a pruning simulation spends when its steps are chosen adaptively."""
+COARSE_FRACTIONS = (0.25, 0.5, 0.75)
+"""Fractions of the heads at which every order is measured first (the same x for every curve)."""
+
+
+def coarse_steps(total: int, points: int = len(COARSE_FRACTIONS)) -> list[int]:
+    """``points`` step counts spread over (0, total): the quarters for three, evenly spaced otherwise."""
+    fractions = (
+        COARSE_FRACTIONS
+        if points == len(COARSE_FRACTIONS)
+        else [(i + 1) / (points + 1) for i in range(points)]
+    )
+    return sorted({min(total, max(1, round(f * total))) for f in fractions}) if total > 0 else []
+
+
+def plan_passes(n_orders: int, budget: int = DEFAULT_PASSES) -> tuple[int, int]:
+    """(coarse points for each order other than the mask's, passes left for the mask order).
+
+    The mask order gets the three coarse points and at least two refinement passes; the
+    other orders share what remains, up to three coarse points each (at least one).
+    """
+    others = max(0, n_orders - 1)
+    if others == 0:
+        return 0, budget
+    each = min(len(COARSE_FRACTIONS), max(1, (budget - len(COARSE_FRACTIONS) - 2) // others))
+    return each, max(len(COARSE_FRACTIONS) + 1, budget - each * others)
+
+
+def measure_adaptively(
+    orders: dict[str, list[Head]],
+    mask_order: str,
+    start: float,
+    evaluate: Callable[[list[Head]], float],
+    *,
+    max_drop: float,
+    budget: int = DEFAULT_PASSES,
+    remove: int | None = None,
+    first: int = 0,
+) -> tuple[dict[str, dict[int, float]], int]:
+    """Accuracy at a few removal counts per order: coarse far from the tolerance, fine near it.
+
+    Parameters
+    ----------
+    orders : dict name -> list of (layer, head)
+        Removal orders (permutations of all heads).
+    mask_order : str
+        The order the exported set of heads is taken from; it gets the refinement.
+    start : float
+        Accuracy with the first ``first`` heads of every order removed (none by default).
+    evaluate : callable(removed heads) -> accuracy
+        One pass over the evaluation set with those heads switched off.
+    max_drop : float
+        The tolerance: accuracy may fall at most this much below ``start``.
+    budget : int
+        Passes (calls of ``evaluate``) to spend at most, when ``remove`` is None.
+    remove : int, optional
+        A fixed number of heads to export: that step of the mask order is measured too.
+    first : int
+        Heads already off before the simulation (the same first heads of every order,
+        a mask); the curves start there and the coarse steps split what remains.
+
+    Returns
+    -------
+    measured : dict name -> {heads removed: accuracy}
+        Including ``first`` -> ``start``. Every value is exactly what ``evaluate`` returned for
+        that prefix of the order, so a measured point equals a step-by-step evaluation.
+    passes : int
+        Calls of ``evaluate`` made (a set of heads already measured is never measured again).
+
+    Notes
+    -----
+    Every order is measured at the same coarse fractions (a quarter, half and three
+    quarters of the heads; fewer points for the other orders when many are asked for).
+    Along the mask order, the last coarse step within the tolerance and the first one
+    below it bracket the crossing, which is then halved while passes remain (bisection),
+    so the exported set is the largest measured prefix that kept accuracy, measured to
+    within a few heads. When no coarse step drops below the tolerance, the bracket is the
+    last coarse step and all heads. Our own procedure (no published source).
+    """
+    total = len(orders[mask_order])
+    floor = start - max_drop - 1e-12
+    cache: dict[frozenset[Head], float] = {frozenset(orders[mask_order][:first]): start}
+    measured = {name: {first: start} for name in orders}
+    passes = 0
+
+    def get(name: str, k: int) -> float:
+        nonlocal passes
+        key = frozenset(orders[name][:k])
+        if key not in cache:
+            cache[key] = float(evaluate(list(orders[name][:k])))
+            passes += 1
+        measured[name][k] = cache[key]
+        return cache[key]
+
+    each, mask_budget = plan_passes(len(orders), budget)
+    for k in coarse_steps(total - first):
+        get(mask_order, first + k)
+    for name in orders:
+        if name != mask_order:
+            for k in coarse_steps(total - first, each):
+                get(name, first + k)
+    if remove is not None:
+        get(mask_order, remove)
+    points = measured[mask_order]
+    failing = [k for k in sorted(points) if points[k] < floor]
+    hi = failing[0] if failing else total + 1  # the first measured step below the tolerance (none: total + 1)
+    lo = max(k for k in points if k < hi)  # the last measured step before it; nothing is measured in between
+    spent = len(points) - 1
+    while hi - lo > 1 and spent < mask_budget:
+        mid = (lo + hi) // 2
+        spent += 1
+        if get(mask_order, mid) < floor:
+            hi = mid
+        else:
+            lo = mid
+    return {name: dict(sorted(m.items())) for name, m in measured.items()}, passes
+
+
 def gates_for(removed: Sequence[Head], num_layers: int, num_heads: int) -> np.ndarray:
     """Gate values [layers, heads]: 0 for removed heads, 1 elsewhere."""
     gates = np.ones((num_layers, num_heads), dtype=np.float32)
@@ -205,10 +324,13 @@ class PruningResult:
     accuracy_after: float
     max_drop: float | None
     """The tolerance used (None when the count was fixed by the caller)."""
-    every: int
+    every: int | None
+    """Accuracy measured after every this many heads; None: steps chosen adaptively."""
     subset: int | None
     """Cap on the utterances evaluated per step (None = the whole set)."""
     caution: str = CAUTION
+    passes: int = 0
+    """Passes over the evaluation set the simulation spent (a pass = one accuracy measurement)."""
 
     @property
     def mask(self) -> dict[str, list[int]]:

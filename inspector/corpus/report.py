@@ -159,6 +159,8 @@ def summary_dict(report: CorpusReport) -> dict:
             "accuracy_after": pr.accuracy_after,
             "mask": pr.mask,
             "measured_every": pr.every,
+            "measured_steps": {c.order_name: list(c.steps) for c in pr.curves},
+            "passes": pr.passes,
             "utterances_per_step": pr.curves[0].utterances,
             "retrained": False,
             "caution": pr.caution,

@@ -48,12 +48,14 @@ from inspector.corpus.batching import EncodedSet, PaddedBatch, encode_set, lengt
 from inspector.corpus.dataset import LabelledSet
 from inspector.corpus.importance import HeadImportance, ImportanceAccumulator, gate_gradients
 from inspector.corpus.pruning import (
+    DEFAULT_PASSES,
     PruningCurve,
     PruningResult,
     gates_for,
     largest_safe_step,
     make_order,
     masked_first,
+    measure_adaptively,
     step_counts,
 )
 from inspector.corpus.redundancy import DEFAULT_GROUP_THRESHOLD, DEFAULT_JS_ROWS, DivergenceSums, Redundancy
@@ -384,7 +386,7 @@ def scan(
     divergence = DivergenceSums(layers * heads)
     rows_total = 0
     gen = torch.Generator().manual_seed(seed)
-    with AttentionRecorder(lm) as rec:
+    with AttentionRecorder(lm, copy_out=True) as rec:  # no stacking copy per batch
         for index in progress.batches(encoded.sorted_batches(batch_size)):
             batch = encoded.batch(index)
             with torch.inference_mode():
@@ -508,11 +510,15 @@ def simulate_pruning(
     orders: dict[str, list[tuple[int, int]]],
     *,
     batch_size: int = 32,
-    every: int = 1,
+    every: int | None = 1,
     subset: np.ndarray | None = None,
     baseline: float | None = None,
     progress: Progress | None = None,
     start: int = 0,
+    mask_order: str | None = None,
+    max_drop: float = 0.01,
+    remove: int | None = None,
+    budget: int = DEFAULT_PASSES,
 ) -> list[PruningCurve]:
     """Accuracy after switching off growing prefixes of each removal order.
 
@@ -524,8 +530,11 @@ def simulate_pruning(
     orders : dict name -> list of (layer, head)
         Each a permutation of all heads.
     batch_size : int
-    every : int
-        Measure after every ``every`` removed heads (and at the end).
+    every : int or None
+        Measure after every ``every`` removed heads (and at the end). None: choose the
+        steps adaptively (:func:`inspector.corpus.pruning.measure_adaptively`), at most
+        ``budget`` passes over the set: coarse steps for every order, fine ones along
+        ``mask_order`` where its accuracy crosses ``max_drop``.
     subset : ndarray, optional
         Utterance positions to evaluate on (default all).
     baseline : float, optional
@@ -535,6 +544,9 @@ def simulate_pruning(
         Heads already off when the simulation starts (the first ``start`` of
         every order, see :func:`inspector.corpus.pruning.masked_first`); the
         curves begin there.
+    mask_order, max_drop, remove, budget
+        For the adaptive choice: the order the exported heads come from (default the
+        first), the accuracy tolerance, a fixed count to measure as well, the passes.
 
     Returns
     -------
@@ -562,6 +574,24 @@ def simulate_pruning(
 
     first = baseline if baseline is not None else accuracy(next(iter(orders.values()))[:start])
     curves = []
+    if every is None:
+        planned = progress.done + len(batches) * (budget + (remove is not None))
+        measured, _ = measure_adaptively(
+            orders,
+            mask_order or next(iter(orders)),
+            first,
+            accuracy,
+            max_drop=max_drop,
+            budget=budget,
+            remove=remove,
+            first=start,
+        )
+        while progress.done < planned:  # the search may stop before its budget: the bar still ends full
+            progress.advance()
+        for name, order in orders.items():
+            points = measured[name]
+            curves.append(PruningCurve(name, list(order), list(points), list(points.values()), len(used)))
+        return curves
     for name, order in orders.items():
         steps = step_counts(len(order), every, start)
         accs = [first] + [accuracy(order[:k]) for k in steps[1:]]
@@ -611,6 +641,8 @@ def pruning_steps(settings: CorpusSettings, n_heads_total: int, baseline_known: 
     """Accuracy measurements the pruning simulation plans (each one pass over the pruning set)."""
     if not settings.orders:
         return 0
+    if settings.prune_every is None:  # at most the budget (the search may stop earlier)
+        return settings.prune_passes + (settings.remove is not None) + (0 if baseline_known else 1)
     steps = step_counts(n_heads_total, settings.prune_every, len(set(settings.mask)))
     passes = (len(steps) - 1) * len(settings.orders) + (0 if baseline_known else 1)
     if settings.remove is not None and settings.remove not in steps:
@@ -773,6 +805,7 @@ def _run_corpus(
             for name in settings.orders
         }
         baseline = found.evaluation.accuracy if subset is None else None
+        mask_order = settings.chosen_mask_order
         curves = simulate_pruning(
             lm,
             encoded,
@@ -784,8 +817,11 @@ def _run_corpus(
             baseline=baseline,
             progress=progress,
             start=len(mask),
+            mask_order=mask_order,
+            max_drop=settings.max_drop,
+            remove=settings.remove,
+            budget=settings.prune_passes,
         )
-        mask_order = settings.chosen_mask_order
         removed, after = choose_mask(curves, mask_order, max_drop=settings.max_drop, remove=settings.remove)
         if after is None:  # a fixed count between measured steps: measure it
             after = simulate_pruning(
@@ -800,6 +836,8 @@ def _run_corpus(
                 progress=progress,
                 start=len(mask),
             )[0].accuracy[-1]
+        measured_sets = {frozenset(c.order[:k]) for c in curves for k in c.steps if k > 0}
+        measured_sets.add(frozenset(removed))
         report.pruning = PruningResult(
             curves=curves,
             mask_order=mask_order,
@@ -809,14 +847,34 @@ def _run_corpus(
             max_drop=None if settings.remove is not None else settings.max_drop,
             every=settings.prune_every,
             subset=None if subset is None else len(subset),
+            passes=len(measured_sets - {frozenset()}) + (baseline is None),
         )
         if subset is not None:
             report.notes.append(
                 f"Pruning steps were evaluated on {len(subset)} of {fmt.count(len(data), 'utterance')} (seeded draw)."
             )
-        if settings.prune_every > 1:
+        if settings.prune_every is None:
+            report.notes.append(pruning_note(report.pruning))
+        elif settings.prune_every > 1:
             report.notes.append(
                 f"Pruning accuracy was measured after every {fmt.count(settings.prune_every, 'head')}."
             )
         phase_done("pruning")
     return report
+
+
+def pruning_note(pruning: PruningResult) -> str:
+    """What an adaptive simulation measured, and how closely the exported set was located."""
+    curve = pruning.curve(pruning.mask_order)
+    kept = len(pruning.removed)
+    later = [k for k in curve.steps if k > kept]
+    where = (
+        f"the next measured step, {later[0]} heads, is the first that loses more"
+        if later and pruning.max_drop is not None
+        else "no later step was measured"
+    )
+    return (
+        f"Pruning accuracy was measured at chosen steps ({pruning.passes} passes over the set): every order "
+        f"at the same coarse steps, the {pruning.mask_order} order more finely where it crosses the tolerance; "
+        f"{kept} heads kept the accuracy and {where}."
+    )

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 from inspector import formatting as fmt
-from inspector.corpus.pruning import PRUNING_ORDERS
+from inspector.corpus.pruning import DEFAULT_PASSES, PRUNING_ORDERS
 from inspector.corpus.redundancy import DEFAULT_GROUP_THRESHOLD, DEFAULT_JS_ROWS
 from inspector.errors import HeadcountError
 
@@ -25,8 +25,10 @@ class CorpusSettings:
     importance: bool = True
     orders: tuple[str, ...] = ("importance", "random")
     """Pruning orders to simulate (empty = no pruning simulation)."""
-    prune_every: int = 1
-    """Measure accuracy after every this many removed heads."""
+    prune_every: int | None = None
+    """Measure accuracy after every this many removed heads; None: at steps chosen adaptively."""
+    prune_passes: int = DEFAULT_PASSES
+    """Most passes over the set an adaptive pruning simulation spends."""
     prune_subset: int | None = None
     """Evaluate pruning steps on at most this many utterances (seeded draw); None = all."""
     max_drop: float = 0.01
@@ -52,8 +54,10 @@ class CorpusSettings:
                 raise HeadcountError(f"unknown pruning order '{name}' (use: {', '.join(PRUNING_ORDERS)})")
         if "importance" in self.orders and not self.importance:
             raise HeadcountError("the 'importance' pruning order needs the importance pass")
-        if self.prune_every < 1:
+        if self.prune_every is not None and self.prune_every < 1:
             raise HeadcountError("pruning must evaluate every 1 or more heads")
+        if self.prune_passes < 5:
+            raise HeadcountError("an adaptive pruning simulation needs at least 5 passes")
         if self.prune_subset is not None and self.prune_subset < 1:
             raise HeadcountError("the pruning subset must hold at least 1 utterance")
         if not 0 <= self.max_drop <= 1:

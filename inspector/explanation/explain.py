@@ -19,11 +19,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from inspector import formatting as fmt
 from inspector.checkpoint import capture
 from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask, masked
 from inspector.checkpoint.tokens import make_view
 from inspector.errors import HeadcountError
+from inspector.explanation.choices import CAUTION as CAUTION  # re-exported
+from inspector.explanation.choices import DEFAULT_RULE
+from inspector.explanation.choices import RULE_NAMES as RULE_NAMES  # re-exported
 from inspector.explanation.faithfulness import faithfulness, faithfulness_hints, merge_to_words
 from inspector.explanation.gradients import (
     CLASSIFICATION_POSITION,
@@ -38,14 +42,6 @@ from inspector.measures.analysis import Prediction, analyze_sentence
 from inspector.measures.metrics import HeadMetrics
 from inspector.measures.rollout import attention_rollout
 
-CAUTION = (
-    "Attention weights alone are not a faithful explanation of a prediction "
-    "(Jain & Wallace 2019; Wiegreffe & Pinter 2019): check them against occlusion "
-    "and Integrated Gradients before acting on them."
-)
-
-RULE_NAMES = {"gauss-legendre": "Gauss-Legendre quadrature", "trapezoid": "trapezoid rule"}
-
 
 @dataclass
 class IntegratedGradientsResult:
@@ -59,13 +55,23 @@ class IntegratedGradientsResult:
     """``pad`` (pad-token embeddings, special tokens kept) or ``zero``."""
     steps: int
     rule: str
-    """``gauss-legendre`` or ``trapezoid``."""
+    """``clenshaw-curtis``, ``gauss-legendre`` or ``trapezoid``."""
     logit_input: float
     logit_baseline: float
+    tolerance: float | None = None
+    """The completeness tolerance the steps were chosen for; None when they were fixed."""
 
     @property
     def logit_difference(self) -> float:
         return self.logit_input - self.logit_baseline
+
+    def steps_text(self) -> str:
+        """``17 steps (chosen for completeness within 1.0%)`` or ``64 steps`` (for captions)."""
+        if self.tolerance is None:
+            return fmt.count(self.steps, "step")
+        return (
+            f"{fmt.count(self.steps, 'step')} (chosen for completeness within {fmt.percent(self.tolerance)})"
+        )
 
     @property
     def completeness_error(self) -> float:
@@ -295,10 +301,10 @@ def explain_sentence(
     *,
     expected: str | None = None,
     extra_labels: Sequence[str] = (),
-    steps: int = 64,
+    steps: int | None = None,
     occlusion: OcclusionMode = "remove",
     baseline: Baseline = "pad",
-    rule: Rule = "gauss-legendre",
+    rule: Rule = DEFAULT_RULE,
     mask: HeadMask | None = None,
 ) -> SentenceExplanation:
     """Explain one sentence's prediction for the predicted and the expected label.
@@ -312,13 +318,15 @@ def explain_sentence(
         The label the sentence should have had.
     extra_labels : sequence of str
         More labels to explain (the rewording comparison adds the other sentence's prediction).
-    steps : int, default 64
-        Integrated Gradients quadrature nodes.
+    steps : int, optional
+        Integrated Gradients quadrature nodes. None (default): chosen adaptively, 8
+        doubled until the completeness error is within 1% of the logit difference
+        (:func:`inspector.explanation.gradients.integrate_adaptively`).
     occlusion : {'remove', 'mask'}, default 'remove'
         Leave each word out, or replace its pieces by the mask token.
     baseline : {'pad', 'zero'}, default 'pad'
         Integrated Gradients baseline (see :func:`inspector.explanation.gradients.baseline_embeddings`).
-    rule : {'gauss-legendre', 'trapezoid'}, default 'gauss-legendre'
+    rule : {'clenshaw-curtis', 'gauss-legendre', 'trapezoid'}, default 'clenshaw-curtis'
     mask : HeadMask, optional
         Heads to switch off: every piece of evidence is then the masked model's.
 
@@ -355,7 +363,10 @@ def explain_sentence(
     with masked(lm, mask):
         grads = attention_gradients(lm, batch, indices)
         watch.lap("attention_gradients")
-        integral, used = integrated_gradients(lm, batch, indices, steps=steps, baseline=baseline, rule=rule)
+        contrasts = [(0, names.index(expected))] if expected and expected != pred.label else []
+        integral, used = integrated_gradients(
+            lm, batch, indices, steps=steps, baseline=baseline, rule=rule, contrasts=contrasts
+        )
         watch.lap("integrated_gradients")
         occ = occlude_words(lm, batch, groups, occlusion)
         watch.lap("occlusion")
@@ -367,10 +378,11 @@ def explain_sentence(
             attributions=merge_to_words(integral.attributions[k], groups),
             token_attributions=integral.attributions[k],
             baseline=used,
-            steps=steps,
+            steps=integral.steps,
             rule=rule,
             logit_input=float(integral.output_input[k]),
             logit_baseline=float(integral.output_baseline[k]),
+            tolerance=integral.tolerance,
         )
         gr_words = merge_to_words(gr_tokens, groups)
         drop = occ.drop(idx)
@@ -403,10 +415,11 @@ def explain_sentence(
             attributions=merge_to_words(token_gap, groups),
             token_attributions=token_gap,
             baseline=used,
-            steps=steps,
+            steps=integral.steps,
             rule=rule,
             logit_input=float(integral.output_input[p] - integral.output_input[e]),
             logit_baseline=float(integral.output_baseline[p] - integral.output_baseline[e]),
+            tolerance=integral.tolerance,
         )
         occ_gap = occ.gap_drop(indices[p], indices[e])
         table = faithfulness(relevance_table(rollout_words, vw_words, gr_gap, ig_gap.attributions), occ_gap)

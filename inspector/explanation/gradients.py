@@ -19,15 +19,23 @@ import torch
 from inspector.checkpoint.capture import AttentionRecorder, Batch
 from inspector.checkpoint.loader import LoadedModel
 from inspector.errors import HeadcountError
+from inspector.explanation.choices import (
+    BASELINES,
+    DEFAULT_RULE,
+    IG_MAX_STEPS,
+    IG_SMALL_DIFFERENCE,
+    IG_START_STEPS,
+    IG_TOLERANCE,
+    NESTED_RULES,
+    RULES,
+)
 
 CLASSIFICATION_POSITION = 0
 """Index of the classification token ([CLS] / <s>) in every supported family."""
 
 Baseline = Literal["pad", "zero"]
-Rule = Literal["gauss-legendre", "trapezoid"]
+Rule = Literal["clenshaw-curtis", "gauss-legendre", "trapezoid"]
 
-BASELINES: tuple[str, ...] = ("pad", "zero")
-RULES: tuple[str, ...] = ("gauss-legendre", "trapezoid")
 
 IG_TOKENS_PER_PASS = 4096
 """Integrated Gradients packs ``steps`` interpolated copies of the sentence into
@@ -161,14 +169,14 @@ def _per_layer(tensors: Sequence[torch.Tensor], heads: int) -> np.ndarray:
 # ---------------------------------------------------------------------------
 
 
-def quadrature(steps: int, rule: Rule = "gauss-legendre") -> tuple[np.ndarray, np.ndarray]:
+def quadrature(steps: int, rule: Rule = DEFAULT_RULE) -> tuple[np.ndarray, np.ndarray]:
     """Nodes and weights for integrating over alpha in [0, 1].
 
     Parameters
     ----------
     steps : int
         Number of gradient evaluations (nodes), at least 2.
-    rule : {'gauss-legendre', 'trapezoid'}
+    rule : {'clenshaw-curtis', 'gauss-legendre', 'trapezoid'}
 
     Returns
     -------
@@ -176,12 +184,17 @@ def quadrature(steps: int, rule: Rule = "gauss-legendre") -> tuple[np.ndarray, n
         ``int_0^1 f(a) da ≈ sum_s weights[s] f(alphas[s])``; the weights sum to 1.
         Gauss-Legendre maps the Legendre nodes t_s of [-1, 1] to ``(t_s + 1) / 2``
         with weights ``w_s / 2`` (exact for polynomials of degree 2*steps - 1);
-        the trapezoid rule uses ``steps`` equally spaced nodes including 0 and 1.
+        Clenshaw-Curtis uses the Chebyshev extreme points ``(1 - cos(pi k / N)) / 2``,
+        k = 0..N with N = steps - 1 (exact up to degree N; the end points are nodes, and
+        the nodes for N intervals are among those for 2N); the trapezoid rule uses
+        ``steps`` equally spaced nodes including 0 and 1 (also nested).
 
     References
     ----------
     Abramowitz & Stegun (1964), "Handbook of Mathematical Functions", 25.4.29
-    (Gauss-Legendre) and 25.4.2 (trapezoidal rule).
+    (Gauss-Legendre) and 25.4.2 (trapezoidal rule); Clenshaw & Curtis (1960), "A method
+    for numerical integration on an automatic computer", with the weights in the closed
+    form of Trefethen (2000), "Spectral Methods in MATLAB", program clencurt.
     """
     if steps < 2:
         raise HeadcountError("Integrated Gradients needs at least 2 steps")
@@ -193,6 +206,23 @@ def quadrature(steps: int, rule: Rule = "gauss-legendre") -> tuple[np.ndarray, n
         w = np.full(steps, 1.0 / (steps - 1))
         w[[0, -1]] /= 2.0
         return alphas, w
+    if rule == "clenshaw-curtis":
+        n = steps - 1
+        theta = np.pi * np.arange(n + 1) / n
+        w = np.zeros(n + 1)
+        inner = theta[1:-1]
+        v = np.ones(n - 1)
+        if n % 2 == 0:
+            w[0] = w[n] = 1.0 / (n * n - 1)
+            for k in range(1, n // 2):
+                v -= 2.0 * np.cos(2 * k * inner) / (4 * k * k - 1)
+            v -= np.cos(n * inner) / (n * n - 1)
+        else:
+            w[0] = w[n] = 1.0 / (n * n)
+            for k in range(1, (n - 1) // 2 + 1):
+                v -= 2.0 * np.cos(2 * k * inner) / (4 * k * k - 1)
+        w[1:-1] = 2.0 * v / n
+        return (1.0 - np.cos(theta)) / 2.0, w / 2.0
     raise HeadcountError(f"unknown integration rule '{rule}' (known: {', '.join(RULES)})")
 
 
@@ -207,10 +237,89 @@ class PathIntegral:
     output_baseline: np.ndarray
     """[labels] F_k(x'): the label's logit at the baseline."""
 
+    steps: int = 0
+    """Quadrature nodes used."""
+    tolerance: float | None = None
+    """The completeness tolerance the steps were chosen for (None: the steps were fixed)."""
+
     @property
     def completeness_error(self) -> np.ndarray:
         """[labels] ``sum_i attr_i - (F(x) - F(x'))`` (0 for exact integration)."""
         return self.attributions.sum(-1) - (self.output_input - self.output_baseline)
+
+    def complete_within(self, tolerance: float, contrasts: Sequence[tuple[int, int]] = ()) -> bool:
+        """True when every label's completeness error is at most ``tolerance`` of its logit difference.
+
+        Differences smaller than ``IG_SMALL_DIFFERENCE`` count as that size (an absolute bound of
+        ``tolerance * IG_SMALL_DIFFERENCE``). Each ``(a, b)`` in ``contrasts`` (positions in the
+        label list) must also hold for the logit gap ``F_a - F_b``, whose attributions are the
+        difference of the two labels' (linearity): its error is ``error_a - error_b``.
+        """
+        difference = self.output_input - self.output_baseline
+        error = self.completeness_error
+        pairs = list(contrasts)
+        if pairs:
+            a, b = np.array(pairs).T
+            difference = np.concatenate([difference, difference[a] - difference[b]])
+            error = np.concatenate([error, error[a] - error[b]])
+        scale = np.maximum(np.abs(difference), IG_SMALL_DIFFERENCE)
+        return bool(np.all(np.abs(error) <= tolerance * scale))
+
+
+def _node_terms(
+    forward: Callable[[torch.Tensor], torch.Tensor],
+    baseline: torch.Tensor,
+    delta: torch.Tensor,
+    labels: Sequence[int],
+    alphas: np.ndarray,
+    rows_per_pass: int,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Per node ``a``: ``(x - x') * dF_k/dx`` at ``x' + a (x - x')`` summed over the embedding, and F there.
+
+    Returns ``terms`` [nodes, labels, n] (float64) and ``outputs`` [nodes, num_outputs]. The
+    nodes go through ``forward`` in batches of ``rows_per_pass`` (rows do not interact, so one
+    backward pass per label gives every row's own gradient).
+    """
+    terms: list[torch.Tensor] = []
+    outputs: list[torch.Tensor] = []
+    for start in range(0, len(alphas), max(1, rows_per_pass)):
+        a = torch.as_tensor(alphas[start : start + rows_per_pass], dtype=delta.dtype)
+        path = (baseline + a[:, None, None] * delta).requires_grad_(True)
+        per_label = []
+        with torch.enable_grad():
+            out = forward(path)
+            for i, k in enumerate(labels):
+                (g,) = torch.autograd.grad(out[:, int(k)].sum(), path, retain_graph=i < len(labels) - 1)
+                per_label.append((g * delta).sum(-1))
+        terms.append(torch.stack(per_label, 1) if per_label else torch.zeros(len(a), 0, delta.shape[0]))
+        outputs.append(out.detach())
+    return torch.cat(terms).double().numpy(), torch.cat(outputs).double().numpy()
+
+
+class _PathNodes:
+    """Node terms computed so far along one path, so a nested rule reuses them when the steps double."""
+
+    def __init__(self, forward, x, baseline, labels, rows_per_pass: int) -> None:
+        self.forward, self.labels, self.rows = forward, list(labels), rows_per_pass
+        self.baseline = baseline.detach().to(x.dtype)
+        self.delta = x.detach() - self.baseline
+        self.known: dict[float, tuple[np.ndarray, np.ndarray]] = {}
+
+    def integral(self, steps: int, rule: Rule) -> PathIntegral:
+        alphas, weights = quadrature(steps, rule)
+        wanted = np.concatenate([[0.0, 1.0], alphas])  # the end points give F(x') and F(x)
+        new = np.array(sorted({float(a) for a in wanted} - set(self.known)))
+        if new.size:
+            terms, outputs = _node_terms(self.forward, self.baseline, self.delta, self.labels, new, self.rows)
+            self.known.update({float(a): (t, o) for a, t, o in zip(new, terms, outputs)})
+        total = sum(w * self.known[float(a)][0] for a, w in zip(alphas, weights))
+        idx = [int(k) for k in self.labels]
+        return PathIntegral(
+            attributions=np.asarray(total, dtype=np.float64).reshape(len(idx), -1),
+            output_input=self.known[1.0][1][idx],
+            output_baseline=self.known[0.0][1][idx],
+            steps=steps,
+        )
 
 
 def integrate_path(
@@ -220,7 +329,7 @@ def integrate_path(
     labels: Sequence[int],
     *,
     steps: int = 64,
-    rule: Rule = "gauss-legendre",
+    rule: Rule = DEFAULT_RULE,
     rows_per_pass: int = 64,
 ) -> PathIntegral:
     """Integrated Gradients of any differentiable ``forward`` along the straight path.
@@ -235,7 +344,7 @@ def integrate_path(
         Output columns to attribute.
     steps : int
         Number of quadrature nodes (gradient evaluations).
-    rule : {'gauss-legendre', 'trapezoid'}
+    rule : {'clenshaw-curtis', 'gauss-legendre', 'trapezoid'}
         See :func:`quadrature`.
     rows_per_pass : int
         How many interpolated inputs go into one forward pass; all nodes plus
@@ -252,33 +361,63 @@ def integrate_path(
     eq. (1) and its Riemann approximation (sec. 5); here a quadrature rule
     replaces the Riemann sum.
     """
-    alphas, weights = quadrature(steps, rule)
-    # End points first (weight 0): they give F(x') and F(x) in the same passes.
-    alphas = np.concatenate([[0.0, 1.0], alphas])
-    weights = np.concatenate([[0.0, 0.0], weights])
-    x = x.detach()
-    baseline = baseline.detach().to(x.dtype)
-    delta = x - baseline
-    total = torch.zeros(len(labels), *x.shape, dtype=x.dtype)
-    outputs: list[torch.Tensor] = []
-    for start in range(0, len(alphas), max(1, rows_per_pass)):
-        a = torch.as_tensor(alphas[start : start + rows_per_pass], dtype=x.dtype)
-        w = torch.as_tensor(weights[start : start + rows_per_pass], dtype=x.dtype)
-        path = (baseline + a[:, None, None] * delta).requires_grad_(True)
-        with torch.enable_grad():
-            out = forward(path)
-            for i, k in enumerate(labels):
-                (g,) = torch.autograd.grad((out[:, int(k)] * w).sum(), path, retain_graph=i < len(labels) - 1)
-                total[i] += g.sum(0)
-        outputs.append(out.detach())
-    out_all = torch.cat(outputs)
-    idx = [int(k) for k in labels]
-    attributions = (delta[None] * total).sum(-1)
-    return PathIntegral(
-        attributions=attributions.numpy().astype(np.float64),
-        output_input=out_all[1, idx].numpy().astype(np.float64),
-        output_baseline=out_all[0, idx].numpy().astype(np.float64),
-    )
+    return _PathNodes(forward, x, baseline, labels, rows_per_pass).integral(steps, rule)
+
+
+def integrate_adaptively(
+    forward: Callable[[torch.Tensor], torch.Tensor],
+    x: torch.Tensor,
+    baseline: torch.Tensor,
+    labels: Sequence[int],
+    *,
+    start: int = IG_START_STEPS,
+    max_steps: int = IG_MAX_STEPS,
+    tolerance: float = IG_TOLERANCE,
+    rule: Rule = DEFAULT_RULE,
+    rows_per_pass: int = 64,
+    contrasts: Sequence[tuple[int, int]] = (),
+) -> PathIntegral:
+    """Integrated Gradients with as few steps as completeness allows: start small, double until it holds.
+
+    Parameters
+    ----------
+    forward, x, baseline, labels, rule, rows_per_pass
+        As for :func:`integrate_path`.
+    start : int
+        First number of intervals (a nested rule then has ``start + 1`` nodes) or, for
+        Gauss-Legendre, of nodes.
+    max_steps : int
+        Never use more nodes than this (the last try is reported even if it misses).
+    tolerance : float
+        Accept the first step count whose completeness error is at most this fraction
+        of every label's logit difference (:meth:`PathIntegral.complete_within`).
+    contrasts : sequence of (int, int)
+        Pairs of positions in ``labels`` whose logit gap must be complete within
+        ``tolerance`` too (contrastive evidence: predicted against expected label).
+
+    Returns
+    -------
+    PathIntegral
+        The integral at the chosen step count, with ``steps`` (nodes) and ``tolerance`` set.
+        With a nested rule (Clenshaw-Curtis, trapezoid) each doubling evaluates only the
+        new nodes, so the whole search costs as many gradient evaluations as its last try.
+
+    References
+    ----------
+    Sundararajan, Taly & Yan (2017), "Axiomatic Attribution for Deep Networks", sec. 5:
+    check that the attributions add up to the difference between the scores (within
+    5%) and raise the number of steps if not; here 1% and doubling.
+    """
+    nodes = _PathNodes(forward, x, baseline, labels, rows_per_pass)
+    nested = rule in NESTED_RULES
+    intervals = max(1, start)
+    while True:
+        steps = min(intervals + 1 if nested else max(2, intervals), max_steps)
+        integral = nodes.integral(steps, rule)
+        if integral.complete_within(tolerance, contrasts) or steps >= max_steps:
+            integral.tolerance = tolerance
+            return integral
+        intervals *= 2
 
 
 def baseline_embeddings(lm: LoadedModel, batch: Batch, kind: Baseline = "pad") -> tuple[torch.Tensor, str]:
@@ -325,9 +464,11 @@ def integrated_gradients(
     batch: Batch,
     labels: Sequence[int],
     *,
-    steps: int = 64,
+    steps: int | None = None,
     baseline: Baseline = "pad",
-    rule: Rule = "gauss-legendre",
+    rule: Rule = DEFAULT_RULE,
+    tolerance: float = IG_TOLERANCE,
+    contrasts: Sequence[tuple[int, int]] = (),
 ) -> tuple[PathIntegral, str]:
     """Integrated Gradients on the word embeddings of one sentence, for several labels.
 
@@ -339,10 +480,18 @@ def integrated_gradients(
         One sentence, no padding.
     labels : sequence of int
         Label indices; each label's *logit* is attributed.
-    steps : int, default 64
+    steps : int, optional
+        Quadrature nodes; None (default) chooses them adaptively
+        (:func:`integrate_adaptively`: 8, 16, 32 ... intervals until the completeness
+        error is within ``tolerance``).
     baseline : {'pad', 'zero'}, default 'pad'
         See :func:`baseline_embeddings`.
-    rule : {'gauss-legendre', 'trapezoid'}, default 'gauss-legendre'
+    rule : {'clenshaw-curtis', 'gauss-legendre', 'trapezoid'}, default 'clenshaw-curtis'
+    tolerance : float, default 0.01
+        Completeness tolerance of the adaptive choice.
+    contrasts : sequence of (int, int)
+        Pairs of positions in ``labels`` whose logit gap the adaptive choice also holds to
+        ``tolerance`` (see :func:`integrate_adaptively`).
 
     Returns
     -------
@@ -361,4 +510,10 @@ def integrated_gradients(
         return lm.model(**_embeds_inputs(batch, embeds)).logits
 
     rows = max(1, IG_TOKENS_PER_PASS // max(1, x.shape[0]))
-    return integrate_path(forward, x, x0, labels, steps=steps, rule=rule, rows_per_pass=rows), used
+    if steps is None:
+        integral = integrate_adaptively(
+            forward, x, x0, labels, tolerance=tolerance, rule=rule, rows_per_pass=rows, contrasts=contrasts
+        )
+    else:
+        integral = integrate_path(forward, x, x0, labels, steps=steps, rule=rule, rows_per_pass=rows)
+    return integral, used

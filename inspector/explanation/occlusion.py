@@ -13,10 +13,10 @@ import torch
 from inspector.checkpoint.capture import Batch
 from inspector.checkpoint.loader import LoadedModel
 from inspector.errors import HeadcountError
+from inspector.explanation.choices import OCCLUSION_MODES
 from inspector.measures.analysis import softmax
 
 OcclusionMode = Literal["remove", "mask"]
-OCCLUSION_MODES: tuple[str, ...] = ("remove", "mask")
 
 OCCLUSION_ROWS_PER_PASS = 256
 """Occluded copies of a sentence evaluated per forward pass."""

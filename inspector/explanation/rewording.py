@@ -11,6 +11,7 @@ from inspector.checkpoint import capture
 from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask, masked
 from inspector.errors import HeadcountError
+from inspector.explanation.choices import DEFAULT_RULE
 from inspector.explanation.explain import (
     SentenceExplanation,
     explain_sentence,
@@ -108,10 +109,10 @@ def compare_rewording(
     expected: str | None = None,
     metric: str = "entropy",
     top: int = 5,
-    steps: int = 64,
+    steps: int | None = None,
     occlusion: OcclusionMode = "remove",
     baseline: Baseline = "pad",
-    rule: Rule = "gauss-legendre",
+    rule: Rule = DEFAULT_RULE,
     mask: HeadMask | None = None,
 ) -> RewordingComparison:
     """Explain ``original`` and ``edited`` for the same labels and compare them.

@@ -344,7 +344,9 @@ def draw_pruning(fig: Figure, x: float, y: float, w: float, h: float, pruning: P
 def pruning_caption(pruning: PruningResult, model: str = "") -> str:
     n = pruning.curves[0].utterances
     return f"{_model(model)}{pruning.caution} Heads switched off by gates on {fmt.count(n, 'utterance')}" + (
-        f", measured every {fmt.count(pruning.every, 'head')}."
+        f", measured at chosen steps ({fmt.count(pruning.passes, 'pass', 'passes')} over the set)."
+        if pruning.every is None
+        else f", measured every {fmt.count(pruning.every, 'head')}."
         if pruning.every > 1
         else ", one head per step."
     )

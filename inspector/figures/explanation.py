@@ -367,7 +367,7 @@ def _settings(ex: SentenceExplanation) -> str:
         else f"the word replaced by {ex.occlusion_replacement}"
     )
     return (
-        f"Integrated Gradients on word embeddings, baseline \u2018{ig.baseline}\u2019, {fmt.count(ig.steps, 'step')}, "
+        f"Integrated Gradients on word embeddings, baseline \u2018{ig.baseline}\u2019, {ig.steps_text()}, "
         f"{RULE_NAMES[ig.rule]}, largest completeness error {fmt.number(worst, 2)} (logits); occlusion with {occ}"
     )
 

@@ -90,8 +90,30 @@ class SentenceAnalysis:
 
     @cached_property
     def rollout(self) -> np.ndarray:
-        """Attention rollout [n, n] (Abnar & Zuidema 2020); switched-off heads left out of the layer means."""
+        """Attention rollout [n, n] (Abnar & Zuidema 2020); switched-off heads left out of the layer means.
+
+        Computed when first asked for (:meth:`rollout_row` serves the relevance band without it)."""
         return rollout.attention_rollout(self.attention, heads_on=self.heads_on)
+
+    def rollout_row(self, i: int) -> np.ndarray:
+        """Row ``i`` of the attention rollout [n], without the full matrix unless it exists already."""
+        if "rollout" in self.__dict__:
+            return self.rollout[i]
+        rows = self.__dict__.setdefault("_rollout_rows", {})
+        if i not in rows:
+            rows[i] = rollout.rollout_rows(self.attention, [i], heads_on=self.heads_on)[0]
+        return rows[i]
+
+    @cached_property
+    def value_norms(self) -> np.ndarray:
+        """Norm of each head's transformed value vector per token [layers, heads, n] (Kobayashi et al. 2020)."""
+        if "value_gram" in self.__dict__:
+            return np.sqrt(np.diagonal(self.value_gram, axis1=-2, axis2=-1)).transpose(0, 2, 1)
+        return norms.value_norms(self.values, self.out_weight)
+
+    def value_weighted_head(self, layer: int, head: int) -> np.ndarray:
+        """One head's value-weighted attention [n, n]: ``a_ij ||f_h(x_j)||`` (Kobayashi et al. 2020)."""
+        return self.attention[layer, head] * self.value_norms[layer, head][None, :]
 
     @cached_property
     def value_gram(self) -> np.ndarray:
@@ -101,14 +123,22 @@ class SentenceAnalysis:
     @cached_property
     def value_weighted(self) -> np.ndarray:
         """Per-head value-weighted attention [layers, heads, n, n] (Kobayashi et al. 2020)."""
-        return norms.value_weighted_attention(
-            self.attention, self.values, self.out_weight, gram=self.value_gram
-        )
+        return self.attention * self.value_norms[:, :, None, :]
 
     @cached_property
     def layer_value_weighted(self) -> np.ndarray:
         """Layer-level value-weighted attention [layers, n, n] (Kobayashi et al. 2020)."""
         return norms.layer_value_weighted(self.attention, self.values, self.out_weight, gram=self.value_gram)
+
+    def layer_value_weighted_row(self, layer: int, i: int) -> np.ndarray:
+        """Row ``i`` of one layer's value-weighted attention [n], from that layer's Gram matrix only."""
+        if "layer_value_weighted" in self.__dict__:
+            return self.layer_value_weighted[layer, i]
+        sl = slice(layer, layer + 1 if layer != -1 else None)
+        gram = self.value_gram[sl] if "value_gram" in self.__dict__ else None
+        return norms.layer_value_weighted(
+            self.attention[sl, :, i : i + 1], self.values[sl], self.out_weight[sl], gram=gram
+        )[0, 0]
 
     def flow(self, *, queries: list[int] | None = None) -> np.ndarray:
         """Attention flow [n, n]; raises ValueError for inputs too long to solve quickly."""
@@ -142,7 +172,7 @@ def analyze_sentence(lm: LoadedModel, text: str, *, mask: HeadMask | None = None
         special=cap.batch.special[0],
         word_ids=cap.batch.word_ids[0],
         attention=cap.sentence(0),
-        values=cap.values[0][:, idx],
+        values=cap.values[0][:, idx] if len(idx) != cap.values.shape[2] else cap.values[0],
         out_weight=cap.out_weight,
         out_bias=cap.out_bias,
         prediction=prediction,

@@ -54,6 +54,34 @@ def value_gram(values: np.ndarray, out_weight: np.ndarray) -> np.ndarray:
     return f @ f.swapaxes(-1, -2)
 
 
+def value_norms(values: np.ndarray, out_weight: np.ndarray) -> np.ndarray:
+    """Norm of every head's transformed value vector of every token.
+
+    Parameters
+    ----------
+    values : ndarray of shape (layers, n, heads, d)
+    out_weight : ndarray of shape (layers, hidden, heads*d)
+
+    Returns
+    -------
+    ndarray of shape (layers, heads, n)
+        ``||f_h(x_j)||_2`` with ``||f_h(x_j)||^2 = v_j^h^T (W_O^h^T W_O^h) v_j^h``: through each
+        head's own d x d matrix ``W_O^h^T W_O^h`` instead of the hidden-sized vectors
+        (the diagonal of :func:`value_gram` at a fraction of its cost).
+
+    References
+    ----------
+    Kobayashi et al. (2020), "Attention is Not Only a Weight: Analyzing
+    Transformers with Vector Norms", eq. (5) for f_h and sec. 3 for its norm.
+    """
+    layers, n, heads, d = values.shape
+    w = out_weight.reshape(layers, out_weight.shape[1], heads, d)
+    blocks = np.einsum("lohd,lohe->lhde", w, w, optimize=True)  # (layers, heads, d, d)
+    v = values.transpose(0, 2, 1, 3)  # (layers, heads, n, d)
+    squared = np.einsum("lhnd,lhnd->lhn", v @ blocks, v)
+    return np.sqrt(np.clip(squared, 0.0, None))
+
+
 def value_weighted_attention(
     attention: np.ndarray, values: np.ndarray, out_weight: np.ndarray, *, gram: np.ndarray | None = None
 ) -> np.ndarray:
@@ -77,9 +105,11 @@ def value_weighted_attention(
     Kobayashi et al. (2020), "Attention is Not Only a Weight: Analyzing
     Transformers with Vector Norms", sec. 3.
     """
-    g = value_gram(values, out_weight) if gram is None else gram
-    norms = np.sqrt(np.diagonal(g, axis1=-2, axis2=-1))  # (layers, n, heads)
-    return attention * norms.transpose(0, 2, 1)[:, :, None, :]
+    if gram is None:
+        norms = value_norms(values, out_weight)
+    else:
+        norms = np.sqrt(np.diagonal(gram, axis1=-2, axis2=-1)).transpose(0, 2, 1)  # (layers, heads, n)
+    return attention * norms[:, :, None, :]
 
 
 def layer_value_weighted(

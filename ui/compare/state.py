@@ -20,7 +20,8 @@ from inspector.comparison.settings import ComparisonSettings
 from inspector.corpus.dataset import read_labelled
 from inspector.corpus.run import StopCheck
 from inspector.formatting import bits, count, head_name, percent, points
-from ui.corpus.state import CORPUS_TORCH_THREADS, CorpusRequest
+from inspector.threads import background_job_threads, set_torch_threads
+from ui.corpus.state import CorpusRequest
 
 CHANGED_HEADER = ("Line", "Utterance", "Expected", "A said", "B said")
 INTENT_HEADER = ("Intent", "F1 of A", "F1 of B", "Change")
@@ -43,10 +44,7 @@ def compute_comparison(
     Raises :class:`inspector.corpus.run.CorpusCancelled` when ``should_stop()`` turns True and
     :class:`inspector.errors.HeadcountError` for problems the user can fix.
     """
-    import torch
-
-    if torch.get_num_threads() != CORPUS_TORCH_THREADS:
-        torch.set_num_threads(CORPUS_TORCH_THREADS)
+    set_torch_threads(background_job_threads())
     data = read_labelled(
         request.path,
         text_field=request.text_field or "text",

@@ -265,8 +265,14 @@ class CorpusPage(QWidget):
             check.setToolTip(f"Simulate removing heads in the \u2018{name}\u2019 order")
             self.order_checks[name] = check
         self.every = QSpinBox(box)
-        self.every.setRange(1, 64)
-        self.every.setValue(defaults.prune_every)
+        self.every.setRange(0, 64)
+        self.every.setSpecialValueText("chosen steps")  # 0: around the tolerance, a few passes
+        self.every.setValue(defaults.prune_every or 0)
+        self.every.setToolTip(
+            f"'chosen steps': a few coarse steps for every order and finer ones where the mask order "
+            f"crosses the tolerance (at most {defaults.prune_passes} passes over the set); "
+            "a number: every that many heads (one pass each)"
+        )
         self.every.setAccessibleName("Measure accuracy every")
         self.every.valueChanged.connect(self._units)
         self._units()
@@ -603,7 +609,7 @@ class CorpusPage(QWidget):
             importance=importance,
             orders=orders,
             max_drop=self.tolerance.value() / 100,
-            prune_every=self.every.value(),
+            prune_every=self.every.value() or None,
         )
         return CorpusRequest(
             path=self.path_edit.text().strip(),
@@ -1027,7 +1033,7 @@ class CorpusPage(QWidget):
             self.order_box.setCurrentText(pr.mask_order)
             curve = pr.curve(pr.mask_order)
             self.count_box.setRange(curve.steps[0], len(curve.order))
-            self.count_box.setSingleStep(max(1, report.settings.prune_every))
+            self.count_box.setSingleStep(max(1, report.settings.prune_every or 1))
             self.count_box.setValue(len(pr.removed))
             if pr.max_drop is not None:
                 self.tolerance.setValue(100 * pr.max_drop)

@@ -33,9 +33,8 @@ from inspector.corpus.run import (
 from inspector.corpus.settings import CorpusSettings
 from inspector.figures.report.pages import misfire_groups, pair_name
 from inspector.paths import SAMPLE_EVAL, SAMPLE_MODEL
+from inspector.threads import background_job_threads, set_torch_threads
 
-CORPUS_TORCH_THREADS = 1
-"""Intra-op threads inside the corpus job: the GUI thread keeps the second core of a 2-core laptop."""
 SHOWN_BAD_ROWS = 12
 """Bad rows listed on the page (the rest are counted; summary.json has them all)."""
 
@@ -87,12 +86,10 @@ def compute_corpus(
 
     Raises :class:`inspector.corpus.run.CorpusCancelled` when ``should_stop()``
     turns True, :class:`inspector.errors.HeadcountError` for problems the user
-    can fix. ``torch.set_num_threads`` acts on the calling thread only.
+    can fix. Torch uses :func:`inspector.threads.background_job_threads` threads (the GUI thread
+    keeps a core; ``torch.set_num_threads`` acts on the calling thread only).
     """
-    import torch
-
-    if torch.get_num_threads() != CORPUS_TORCH_THREADS:
-        torch.set_num_threads(CORPUS_TORCH_THREADS)
+    set_torch_threads(background_job_threads())
     request.settings.check(lm)
     data = read_request(lm, request)
     return run_corpus(

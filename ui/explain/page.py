@@ -33,6 +33,7 @@ from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask
 from inspector.errors import HeadcountError
+from inspector.explanation.choices import IG_TOLERANCE
 from inspector.explanation.explain import CAUTION, require_classifier
 from inspector.explanation.gradients import BASELINES
 from inspector.explanation.occlusion import OCCLUSION_MODES
@@ -79,6 +80,10 @@ def explanation_export(state: ExplainState, paper: str = DEFAULT_PAPER) -> Expor
     return ExportJob(
         "explain", lambda: explanation_pages(ex, cmp, paper=paper), lambda: table, stem, "the explanation"
     )
+
+
+AUTO_STEPS = 1
+"""The steps box's lowest value, shown as 'auto' (one node is never a valid fixed choice)."""
 
 
 class ExplainPage(QWidget):
@@ -183,9 +188,14 @@ class ExplainPage(QWidget):
             self.baseline_box.setItemData(i, BASELINE_TEXT[b], Qt.ItemDataRole.ToolTipRole)
         self.baseline_box.activated.connect(lambda _i: self.run())
         self.steps_box = QSpinBox(box)
-        self.steps_box.setRange(2, 512)
-        self.steps_box.setValue(ExplainRequest("").steps)
+        self.steps_box.setRange(AUTO_STEPS, 512)
+        self.steps_box.setSpecialValueText("auto")  # the lowest value: chosen for completeness within 1%
+        self.steps_box.setValue(ExplainRequest("").steps or AUTO_STEPS)
         self.steps_box.setAccessibleName("Integrated Gradients steps")
+        self.steps_box.setToolTip(
+            "Integrated Gradients steps; 'auto' starts small and doubles until the attributions add up "
+            f"to the logit difference within {fmt.percent(IG_TOLERANCE)}"
+        )
         self.steps_box.editingFinished.connect(self._steps_changed)
 
         grid = control_grid(box)
@@ -341,7 +351,7 @@ class ExplainPage(QWidget):
             expected=self.expected_label(),
             edited=self.edited.text(),
             metric=self.state.metric,
-            steps=self.steps_box.value(),
+            steps=self.chosen_steps(),
             occlusion=self.occlusion_box.currentData(),
             baseline=self.baseline_box.currentData(),
             mask=self.mask,
@@ -378,8 +388,13 @@ class ExplainPage(QWidget):
         if not self.state.ready and not self._runner.is_busy(CHANNEL) and self.entry.text().strip():
             self.run()
 
+    def chosen_steps(self) -> int | None:
+        """The steps box's value; None for 'auto'."""
+        value = self.steps_box.value()
+        return None if value == AUTO_STEPS else value
+
     def _steps_changed(self) -> None:
-        if self.state.ready and self.state.result.request.steps != self.steps_box.value():
+        if self.state.ready and self.state.result.request.steps != self.chosen_steps():
             self.run()
 
     def _result_ready(self, lm: LoadedModel, result: object) -> None:

@@ -19,6 +19,7 @@ import numpy as np
 from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask
+from inspector.explanation.choices import DEFAULT_RULE
 from inspector.explanation.explain import (
     RULE_NAMES,
     ContrastEvidence,
@@ -33,6 +34,7 @@ from inspector.explanation.rewording import (
     compare_rewording,
     heads_that_changed,
 )
+from inspector.threads import INTERACTIVE_THREADS, set_torch_threads
 
 METHODS: tuple[str, ...] = (
     "rollout",
@@ -88,9 +90,6 @@ RIVALS = 2
 TOP_HEADS = 5
 """How many most-changed heads are listed (the CLI's default)."""
 
-INTERACTIVE_TORCH_THREADS = 1
-"""Intra-op threads inside the explain job (see ``ui.main_window.analyse_interactively`` for the measurement)."""
-
 
 @dataclass(frozen=True)
 class ExplainRequest:
@@ -101,10 +100,11 @@ class ExplainRequest:
     edited: str = ""
     """A rewording to compare with; empty for none."""
     metric: str = DEFAULT_METRIC
-    steps: int = 64
+    steps: int | None = None
+    """Integrated Gradients steps; None chooses them adaptively (the CLI's 'auto')."""
     occlusion: str = "remove"
     baseline: str = "pad"
-    rule: str = "gauss-legendre"
+    rule: str = DEFAULT_RULE
     top: int = TOP_HEADS
     mask: HeadMask = HeadMask()
     """Heads switched off (on the sentence page) while explaining."""
@@ -137,10 +137,7 @@ def compute_explanation(lm: LoadedModel, request: ExplainRequest) -> ExplainResu
     on a loaded 2-core machine a second spinning thread slows the job and the
     GUI thread down (``torch.set_num_threads`` acts on the calling thread).
     """
-    import torch
-
-    if torch.get_num_threads() != INTERACTIVE_TORCH_THREADS:
-        torch.set_num_threads(INTERACTIVE_TORCH_THREADS)
+    set_torch_threads(INTERACTIVE_THREADS)
     if request.has_edit:
         cmp = compare_rewording(
             lm,
@@ -356,7 +353,7 @@ class ExplainState:
         )
         return (
             f"Integrated Gradients ({what}): baseline \u2018{ig.baseline}\u2019 ({baseline}), "
-            f"{fmt.count(ig.steps, 'step')}, {RULE_NAMES[ig.rule]}; completeness error "
+            f"{ig.steps_text()}, {RULE_NAMES[ig.rule]}; completeness error "
             f"{fmt.number(ig.completeness_error, 2, sign=True)} on a logit gap of {fmt.signed(ig.logit_difference)}"
         )
 

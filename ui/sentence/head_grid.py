@@ -87,21 +87,48 @@ def resample_cells(attention: np.ndarray, cell: int) -> np.ndarray:
 def _block_max(a: np.ndarray, cell: int, axis: int) -> np.ndarray:
     """Maximum over ``cell`` near-equal consecutive blocks along ``axis``.
 
-    Gathers the j-th element of every block for j < k (the longest block) and keeps the running
-    maximum: k vectorised passes, fast even along the last axis (a reduction over a tiny
-    innermost axis is not).
+    Along the last axis it gathers the j-th element of every block for j < k (the longest
+    block) and keeps the running maximum: k vectorised passes, fast where a reduction over a
+    tiny innermost axis is not. Along any other axis each block is reduced in place (whole
+    rows at a time): one pass over the array.
     """
     m = a.shape[axis]
     starts = np.arange(cell) * m // cell
     ends = np.append(starts[1:], m)
+    axis %= a.ndim
+    if axis != a.ndim - 1:
+        shape = list(a.shape)
+        shape[axis] = cell
+        out = np.empty(shape, dtype=a.dtype)
+        before = (slice(None),) * axis
+        for i, (s, e) in enumerate(zip(starts, ends)):
+            np.max(a[(*before, slice(s, e))], axis=axis, out=out[(*before, i)])
+        return out
     out = np.take(a, starts, axis=axis)
     for j in range(1, int((ends - starts).max())):
         np.maximum(out, np.take(a, np.minimum(starts + j, ends - 1), axis=axis), out=out)
     return out
 
 
+def head_codes(attention: np.ndarray, cell: int, *, per_head: bool) -> np.ndarray:
+    """Every head resized to ``cell`` x ``cell`` pixels as colour-map codes, [layers, heads, cell, cell] uint8.
+
+    Shrinking takes block maxima of the weights first and colours the small cells
+    (every weight is read once); enlarging colours the small matrices first and then
+    repeats pixels. Either way the result is the same: the map is monotonic, so the code
+    of a block maximum is the block maximum of codes, and each head's largest weight
+    (its own scale) survives the block maxima.
+    """
+    if cell >= attention.shape[-1]:
+        vmax = attention.max(axis=(-2, -1))[..., None, None] if per_head else 1.0
+        return resample_cells(to_codes(attention, vmax), cell)
+    small = resample_cells(attention, cell)
+    vmax = small.max(axis=(-2, -1))[..., None, None] if per_head else 1.0
+    return to_codes(small, vmax)
+
+
 def mosaic_rgba(
-    attention: np.ndarray,
+    attention: np.ndarray | None,
     geometry: GridGeometry,
     *,
     per_head: bool,
@@ -109,29 +136,31 @@ def mosaic_rgba(
     background: tuple[int, int, int, int],
     track: tuple[int, int, int, int],
     fill: tuple[int, int, int, int],
+    codes: np.ndarray | None = None,
 ) -> np.ndarray:
     """Colour every head and lay the cells out in one RGBA array.
 
     Parameters
     ----------
     attention : ndarray of shape (layers, heads, m, m)
+        Ignored when ``codes`` are given.
     geometry : GridGeometry
         Cell size, gap and lane height in pixels.
     per_head : bool
         Scale each head from 0 to its own largest weight (else 0 to 1).
     meter : ndarray of shape (layers, heads) in [0, 1], optional
         Fill fraction of each cell's meter bar.
+    codes : ndarray of shape (layers, heads, cell, cell), optional
+        :func:`head_codes` of the attention at this cell size, if already built.
 
     Returns
     -------
     ndarray of shape (layers * pitch_y, heads * pitch_x, 4), uint8
     """
-    L, H = attention.shape[:2]
     c, g, lane = geometry.cell, geometry.gap, geometry.lane
-    vmax = attention.max(axis=(-2, -1))[..., None, None] if per_head else 1.0
-    # Colour codes first, then resize the uint8 codes: the map is monotonic, so the block
-    # maximum of codes is the code of the block maximum, and bytes move 4x faster than floats.
-    codes = resample_cells(to_codes(attention, vmax), c)  # [L, H, c, c] uint8
+    if codes is None:
+        codes = head_codes(attention, c, per_head=per_head)
+    L, H = codes.shape[:2]
     cells = LUT32[codes]  # one packed RGBA word per pixel
     out = np.empty((L, c + lane + g, H, c + g), dtype=np.uint32)
     out[...] = _pack(background)
@@ -215,6 +244,12 @@ class HeadGrid(HoverView):
         self._version = 0
         self._cache_key: tuple | None = None
         self._image: QImage | None = None
+        self._heads_version = 0
+        """Changes only when the drawn matrices (or their colour scale) change, not with the meters."""
+        self._codes_key: tuple | None = None
+        self._codes: np.ndarray | None = None
+        self._offered: dict[int, tuple[np.ndarray, int, bool, np.ndarray]] = {}
+        """Cells prepared in the background for other matrices: id -> (matrices, cell, per_head, codes)."""
         self.rebuilds = 0
         """How many times the mosaic image was rebuilt (for tests and the benchmark)."""
         self.overlay: np.ndarray | None = None
@@ -231,6 +266,8 @@ class HeadGrid(HoverView):
         per_head: bool,
         summary: Callable[[int, int], str] | None = None,
     ) -> None:
+        if attention is not self.attention or per_head != self._per_head:
+            self._heads_version += 1
         self.attention = attention
         self.metric_values = metric
         lo, hi = metric_range
@@ -244,6 +281,7 @@ class HeadGrid(HoverView):
         self.note = note
         self.attention = self.metric_values = self._meter = None
         self._version += 1
+        self._heads_version += 1
         self.update()
 
     def set_overlay(self, values: np.ndarray | None, peak: float = 1.0) -> None:
@@ -337,6 +375,7 @@ class HeadGrid(HoverView):
             background=bg.getRgb(),
             track=_blend(track, bg),
             fill=_blend(fill, bg),
+            codes=self._head_codes(geo.cell),
         )
         image = rgba_image(rgba)
         if geo.lane == NUMBER_LANE and self.metric_values is not None:
@@ -361,6 +400,40 @@ class HeadGrid(HoverView):
         numbers = self.number_texts() if geo.lane == NUMBER_LANE and self.metric_values is not None else []
         off = ["off"] * len(self._off) if geo.cell >= 30 else []
         return ticks + [text for row in numbers for text in row if text] + off
+
+    def _head_codes(self, cell: int) -> np.ndarray:
+        """The coloured per-head cells, built once per set of matrices and cell size.
+
+        A new meter metric, palette or selection reuses them; only new matrices (another
+        sentence, the word view, special tokens hidden), another colour scale or a new cell
+        size rebuild them.
+        """
+        key = (self._heads_version, cell)
+        if key != self._codes_key or self._codes is None:
+            offered = self._offered.get(id(self.attention))
+            if (
+                offered is not None
+                and offered[0] is self.attention
+                and offered[1:3] == (cell, self._per_head)
+            ):
+                self._codes = offered[3]
+            else:
+                self._codes = head_codes(self.attention, cell, per_head=self._per_head)
+            self._codes_key = key
+        return self._codes
+
+    def offer_codes(self, attention: np.ndarray, cell: int, per_head: bool, codes: np.ndarray) -> None:
+        """Keep :func:`head_codes` of ``attention`` built elsewhere (a worker), for when it is shown.
+
+        Only the last few offers are kept; each holds its matrices, so the identity check stays valid.
+        """
+        self._offered[id(attention)] = (attention, cell, per_head, codes)
+        while len(self._offered) > 4:
+            self._offered.pop(next(iter(self._offered)))
+
+    def forget_offers(self) -> None:
+        """Drop cells prepared for matrices that will not be shown (a new sentence)."""
+        self._offered.clear()
 
     def _print_numbers(self, image: QImage, geo: GridGeometry) -> None:
         p = QPainter(image)

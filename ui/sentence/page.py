@@ -34,11 +34,18 @@ from inspector.measures.analysis import Prediction, SentenceAnalysis
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
 from ui.sentence.bar import SentenceBar
 from ui.sentence.close_up import CloseUp
-from ui.sentence.head_grid import HeadGrid
+from ui.sentence.head_grid import HeadGrid, head_codes
 from ui.sentence.pair_state import PairState
 from ui.sentence.relevance_band import BandScroll, RelevanceBand
 from ui.sentence.second_model import SecondModelStrip
-from ui.sentence.state import LINK_MODES, RELEVANCE_SOURCES, SOURCES, SentencePage, metric_range
+from ui.sentence.state import (
+    LINK_MODES,
+    RELEVANCE_SOURCES,
+    SOURCES,
+    SentencePage,
+    metric_range,
+    view_matrices,
+)
 from ui.sentence.token_arcs import TokenArcs
 from ui.widgets.colormap import accent, dim_text
 from ui.widgets.legend import ColourKey, MeterKey
@@ -557,6 +564,7 @@ class SentencePageWidget(QWidget):
         """
         if full is not None or not analysis.mask:
             self.state.set_full_prediction(analysis.text, full or analysis.prediction)
+        self.grid.forget_offers()
         self.state.set_analysis(analysis)
         self.refresh()
         self.update_stale_note()
@@ -774,6 +782,7 @@ class SentencePageWidget(QWidget):
         QTimer.singleShot(0, self.balance_mosaic)  # once the new subtitle is laid out
         self.refresh_selection()
         self._request_flow()
+        self._prepare_views()
 
     def refresh_selection(self) -> None:
         """Push the selected head and query into the views that depend on them."""
@@ -832,6 +841,33 @@ class SentencePageWidget(QWidget):
                 self.refresh()
 
         self._runner.submit("flow", analysis.flow, done, self.status.emit)
+
+    def _prepare_views(self) -> None:
+        """In the background, get the views one switch away (words, special tokens) ready to show.
+
+        Their matrices and mosaic cells are computed off the GUI thread after the current
+        views are painted, so switching costs a repaint even at 512 tokens.
+        """
+        st = self.state
+        geo = self.grid.grid_geometry()
+        keys = st.views_to_prepare()
+        if not keys or geo is None:
+            return
+        analysis, cell, per_head = st.analysis, geo.cell, st.options.scale == "own"
+
+        def work() -> list[tuple]:
+            out = []
+            for key in keys:
+                view, matrices = view_matrices(analysis, *key)
+                out.append((key, view, matrices, head_codes(matrices, cell, per_head=per_head)))
+            return out
+
+        def done(results: object) -> None:
+            for key, view, matrices, codes in results:
+                if st.store_view(analysis, key, view, matrices):
+                    self.grid.offer_codes(matrices, cell, per_head, codes)
+
+        self._runner.submit("views", work, done, lambda _text: None)
 
     def view_widgets(self) -> list[QWidget]:
         return [self.grid, self.closeup, self.arcs, self.band]

@@ -182,6 +182,22 @@ def shift_text(shift: LabelShift) -> str:
     )
 
 
+def view_matrices(
+    analysis: SentenceAnalysis, words: bool, hide_special: bool
+) -> tuple[TokenView, np.ndarray]:
+    """The token axis and every head's attention on it, [layers, heads, m, m] float32.
+
+    Pure function of the analysis (no state): the page also runs it on a worker thread to
+    have the other word/special views ready before the user switches to them.
+    """
+    view = make_view(
+        analysis.tokens, analysis.special, analysis.word_ids, words=words, drop_special=hide_special
+    )
+    if not words and not hide_special:
+        return view, analysis.attention
+    return view, np.ascontiguousarray(apply_view(analysis.attention, view), dtype=np.float32)
+
+
 def classification_index(special: np.ndarray) -> int:
     """Position of the classification token: the first special token, else 0 (common practice, no source)."""
     hits = np.flatnonzero(np.asarray(special, dtype=bool))
@@ -207,6 +223,8 @@ class SentencePage:
     """The prediction of the full model (every head on) for ``full_text``."""
     full_text: str | None = None
     _cache: dict = field(default_factory=dict, repr=False)
+    _views: dict = field(default_factory=dict, repr=False)
+    """(words, hide_special) -> (TokenView, head matrices or None); kept across option changes."""
 
     # -- changes ---------------------------------------------------------------------------------
     def set_analysis(self, analysis: SentenceAnalysis | None) -> None:
@@ -214,6 +232,7 @@ class SentencePage:
         self.analysis = analysis
         self.flow = None
         self._cache.clear()
+        self._views.clear()
         if analysis is not None:
             self.layer = min(self.layer, analysis.num_layers - 1)
             self.head = min(self.head, analysis.num_heads - 1)
@@ -313,18 +332,16 @@ class SentencePage:
     def ready(self) -> bool:
         return self.analysis is not None
 
+    def _view_key(self) -> tuple[bool, bool]:
+        return bool(self.options.words), bool(self.options.hide_special)
+
     def view(self) -> TokenView:
-        key = ("view",)
-        if key not in self._cache:
+        key = self._view_key()
+        if key not in self._views:
             a = self._require()
-            self._cache[key] = make_view(
-                a.tokens,
-                a.special,
-                a.word_ids,
-                words=self.options.words,
-                drop_special=self.options.hide_special,
-            )
-        return self._cache[key]
+            view = make_view(a.tokens, a.special, a.word_ids, words=key[0], drop_special=key[1])
+            self._views[key] = (view, None)
+        return self._views[key][0]
 
     def query_index(self) -> int:
         """The query token's position on the current axis (first shown token if it is hidden)."""
@@ -334,13 +351,32 @@ class SentencePage:
         return 0
 
     def head_matrices(self) -> np.ndarray:
-        """Every head's attention on the current axis, [layers, heads, m, m] float32."""
-        key = ("heads",)
-        if key not in self._cache:
-            a = self._require()
-            out = a.attention if self._identity_view() else apply_view(a.attention, self.view())
-            self._cache[key] = np.ascontiguousarray(out, dtype=np.float32)
-        return self._cache[key]
+        """Every head's attention on the current axis, [layers, heads, m, m] float32.
+
+        Computed once per analysis and view (words or pieces, specials shown or hidden), so
+        switching back and forth, or to a view prepared in the background, costs nothing.
+        """
+        key = self._view_key()
+        view, matrices = self._views.get(key, (None, None))
+        if matrices is None:
+            view, matrices = view_matrices(self._require(), *key)
+            self._views[key] = (view, matrices)
+        return matrices
+
+    def views_to_prepare(self) -> list[tuple[bool, bool]]:
+        """The (words, hide_special) views one switch away from the current one that are not ready yet."""
+        words, hide = self._view_key()
+        flips = [(not words, hide), (words, not hide)]
+        return [k for k in flips if self._views.get(k, (None, None))[1] is None]
+
+    def store_view(
+        self, analysis: SentenceAnalysis, key: tuple[bool, bool], view: TokenView, matrices: np.ndarray
+    ) -> bool:
+        """Keep a view prepared in the background; False if it is stale or was computed meanwhile."""
+        if analysis is not self.analysis or self._views.get(key, (None, None))[1] is not None:
+            return False
+        self._views[key] = (view, matrices)
+        return True
 
     def metric_values(self) -> np.ndarray:
         """The chosen metric for every head, [layers, heads] (computed on pieces by the core).
@@ -395,7 +431,7 @@ class SentencePage:
             pieces, where = self.flow, f"all {fmt.count(a.num_layers, 'layer')}"
             note = self.flow_note() or "residual 0.5, heads averaged"
         elif src == "value_head":
-            pieces = a.value_weighted[self.layer, self.head]
+            pieces = a.value_weighted_head(self.layer, self.head)
             where = fmt.head_name(self.layer, self.head)
             note = "weight x norm of the transformed value"
         else:
@@ -445,12 +481,12 @@ class SentencePage:
         note = f"row of '{a.tokens[cls]}'"
         row: np.ndarray | None
         if src == "rollout":
-            row = a.rollout[cls]
+            row = a.rollout_row(cls)
         elif src == "flow":
             row = None if self.flow is None else self.flow[cls]
             note = self.flow_note() or note
         elif src == "value":
-            last = a.layer_value_weighted[-1][cls]
+            last = a.layer_value_weighted_row(-1, cls)
             row = last / max(float(last.sum()), 1e-12)
         else:
             raise KeyError(src)

@@ -8,3 +8,6 @@ appendix of definitions); ``build`` writes them as PDF or HTML, atomically. May
 import every earlier stage (checkpoint, measures, corpus, explanation) and the
 other figure modules; never the command line, never Qt.
 """
+
+DEFAULT_EXPLAINED = 5
+"""Top misfires the report explains by default (one page each); here so ``--help`` needs no matplotlib."""

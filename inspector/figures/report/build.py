@@ -22,11 +22,10 @@ from inspector.explanation.explain import SentenceExplanation
 from inspector.figures.files import atomic_write
 from inspector.figures.pages import figure_bytes, pdf_bytes
 from inspector.figures.paper import DEFAULT_PAPER, check_paper
+from inspector.figures.report import DEFAULT_EXPLAINED
 from inspector.figures.report import pages as P
 from inspector.figures.report.run_folder import RunFolder, read_run
 
-DEFAULT_EXPLAINED = 5
-"""Misfires explained on their own pages by default (the most confident of each confusable pair first)."""
 REPORT_FORMATS = (".pdf", ".html")
 Progress = Callable[[int, int, str], None]
 

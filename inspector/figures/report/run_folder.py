@@ -142,8 +142,9 @@ def _pruning(folder: Path, info: dict, layers: int, heads: int) -> tuple[Pruning
         accuracy_before=float(info["accuracy_before"]),
         accuracy_after=info["accuracy_after"],
         max_drop=info["max_drop"],
-        every=int(info["measured_every"]),
+        every=None if info["measured_every"] is None else int(info["measured_every"]),
         subset=None,
+        passes=int(info.get("passes") or 0),
         caution=info.get("caution", CAUTION),
     )
     return result, mask
