@@ -35,6 +35,7 @@ def analysis_json(result) -> dict:
         "tokens": list(result.tokens),
         "special": [bool(s) for s in result.special],
         "prediction": None if pred is None else {"label": pred.label, "probabilities": pred.probabilities},
+        "layers": [{"layer": l, "window": w} for l, w in enumerate(result.layer_windows())],
         "heads": result.heads_table(),
     }
 

@@ -59,7 +59,7 @@ from inspector.corpus.redundancy import DEFAULT_GROUP_THRESHOLD, DEFAULT_JS_ROWS
 from inspector.corpus.settings import CorpusSettings
 from inspector.corpus.streaming import RunningMoments
 from inspector.errors import HeadcountError
-from inspector.measures.metrics import METRIC_NAMES, head_metrics
+from inspector.measures.metrics import METRIC_NAMES, head_metrics, window_reach
 
 ProgressCallback = Callable[[int, int], None]
 StopCheck = Callable[[], bool]
@@ -389,7 +389,10 @@ def scan(
             with torch.inference_mode():
                 logits = lm.model(**batch.inputs).logits
                 att = rec.attention()
-                found = head_metrics(att, batch.special[:, None, None, :], batch.mask[:, None, None, :])
+                reach = window_reach(lm.windows, att.shape[-1])
+                found = head_metrics(
+                    att, batch.special[:, None, None, :], batch.mask[:, None, None, :], reach=reach
+                )
                 moments.update(torch.stack([found.get(n) for n in METRIC_NAMES], 1).numpy())
                 if redundancy:
                     rows, n_real = _js_rows(att, batch.mask, js_rows, gen)
