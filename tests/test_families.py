@@ -211,7 +211,10 @@ def test_families_without_exact_weights_are_refused_with_the_reason(tmp_path, mi
     with pytest.raises(HeadcountError, match="Fourier") as info:
         load_checkpoint(folder)
     assert "\n" not in str(info.value)
-    for family, key, word in (("roformer", "rotary_value", "value"), ("deberta", "talking_head", "mixes heads")):
+    for family, key, word in (
+        ("roformer", "rotary_value", "value"),
+        ("deberta", "talking_head", "mixes heads"),
+    ):
         folder = build_checkpoint(family, tmp_path / family, minilm_dir)
         config = json.loads((folder / "config.json").read_text())
         (folder / "config.json").write_text(json.dumps({**config, key: True}))

@@ -49,13 +49,13 @@ def build_window(args: argparse.Namespace, settings: QSettings | None = None):
         window.resize(*args.size)
     if args.text:
         window.open_sentence(args.text, args.expected)
-    model = Path(args.model) if args.model else default_model()
+    model = args.model if args.model else default_model()
     if model is None:
         window.show_error(
             "No sample model found; open a checkpoint folder with File \u203a Open model folder (Ctrl+O)."
         )
     else:
-        window.open_model(model, allow_pickle=args.allow_pickle)
+        window.open_model(model, allow_pickle=args.allow_pickle, checkpoint=args.checkpoint)
     return window
 
 

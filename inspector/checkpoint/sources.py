@@ -82,7 +82,9 @@ def _cached_snapshot(repo_id: str) -> Path:
         "(huggingface_hub's command line) and copy the cache folder here, or pass a local folder"
     )
     if not repo.is_dir():
-        raise HeadcountError(f"'{repo_id}' is not a folder and not in the local Hugging Face cache ({cache}). {how}")
+        raise HeadcountError(
+            f"'{repo_id}' is not a folder and not in the local Hugging Face cache ({cache}). {how}"
+        )
     try:
         commit = (repo / "refs" / "main").read_text(encoding="utf-8").strip()
     except (OSError, UnicodeDecodeError):

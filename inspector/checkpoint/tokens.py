@@ -15,7 +15,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
-STRUCTURAL_TOKENS = ("cls_token_id", "sep_token_id", "bos_token_id", "eos_token_id", "pad_token_id", "mask_token_id")
+STRUCTURAL_TOKENS = (
+    "cls_token_id",
+    "sep_token_id",
+    "bos_token_id",
+    "eos_token_id",
+    "pad_token_id",
+    "mask_token_id",
+)
 """The tokenizer attributes naming structural tokens: classification, separator, begin/end, padding, mask."""
 
 _CONTINUATION_PREFIX = "##"

@@ -7,17 +7,48 @@ import argparse
 EXIT_USER_ERROR = 2
 
 
+def _whole_number(text: str, low: int, what: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected {what}, got {text!r}") from None
+    if value < low:
+        raise argparse.ArgumentTypeError(f"expected {what}, got {value}")
+    return value
+
+
+def positive_int(text: str) -> int:
+    """argparse type: a whole number of at least 1."""
+    return _whole_number(text, 1, "a whole number of at least 1")
+
+
+def non_negative_int(text: str) -> int:
+    """argparse type: a whole number of at least 0."""
+    return _whole_number(text, 0, "a whole number of at least 0")
+
+
 def load_model(args: argparse.Namespace):
     """Open the checkpoint named by a command's ``MODEL_DIR`` argument."""
     from inspector.checkpoint.loader import load_checkpoint
 
-    return load_checkpoint(args.model, allow_pickle=args.allow_pickle)
+    return load_checkpoint(args.model, allow_pickle=args.allow_pickle, checkpoint=args.checkpoint)
 
 
 def add_model_command(sub: argparse._SubParsersAction, name: str, help_text: str) -> argparse.ArgumentParser:
     """Add a sub-command whose first argument is a checkpoint folder."""
     p = sub.add_parser(name, help=help_text, description=help_text)
-    p.add_argument("model", metavar="MODEL_DIR", help="checkpoint folder (config.json + safetensors)")
+    p.add_argument(
+        "model",
+        metavar="MODEL_DIR",
+        help="checkpoint folder (config.json + safetensors), a training run's folder of checkpoint-N "
+        "folders, or a repo id in the local Hugging Face cache",
+    )
+    p.add_argument(
+        "--checkpoint",
+        type=non_negative_int,
+        metavar="N",
+        help="in a training-run folder, open checkpoint-N (default: the latest)",
+    )
     p.add_argument(
         "--allow-pickle",
         action="store_true",
