@@ -166,7 +166,7 @@ def main() -> None:
 
     transformers.utils.logging.set_verbosity_error()
     transformers.utils.logging.disable_progress_bar()
-    print(f"torch threads: {torch.get_num_threads()}; JS rows compared per batch: {CorpusSettings().js_rows}")
+    print(f"torch threads: {torch.get_num_threads()}; JS rows compared: {CorpusSettings().js_rows}")
     with tempfile.TemporaryDirectory() as tmp:
         if sample_model_available():
             model, name = SAMPLE_MODEL, "sample model (ferry_intents)"

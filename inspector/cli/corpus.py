@@ -16,7 +16,7 @@ from dataclasses import replace
 from typing import NoReturn
 
 from inspector import formatting as fmt
-from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model
+from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model, non_negative_int
 from inspector.corpus.dataset import BAD_ROW_POLICIES, read_labelled
 from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
 from inspector.corpus.settings import CorpusSettings
@@ -36,12 +36,22 @@ def _orders(text: str) -> tuple[str, ...]:
     return names
 
 
+def _js_rows(text: str) -> int | str | None:
+    """argparse type of --js-rows: 'auto', 'all' / 0 (every row) or a positive count."""
+    if text.strip().lower() == "auto":
+        return "auto"
+    if text.strip().lower() == "all":
+        return None
+    value = non_negative_int(text)
+    return None if value == 0 else value
+
+
 def settings_from_args(args: argparse.Namespace) -> CorpusSettings:
     """The :class:`CorpusSettings` the options ask for."""
     orders = () if args.orders.strip().lower() == "none" else _orders(args.orders)
     return CorpusSettings(
         batch_size=args.batch_size,
-        js_rows=None if args.js_rows == 0 else args.js_rows,
+        js_rows=args.js_rows,
         group_threshold=args.group_threshold,
         importance=not args.no_importance,
         orders=orders,
@@ -256,10 +266,12 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--js-rows",
-        type=int,
+        type=_js_rows,
         default=d.js_rows,
-        metavar="N",
-        help=f"query rows compared per batch for head redundancy; 0 = all rows (default: {d.js_rows})",
+        metavar="auto|all|N",
+        help="query rows compared for head redundancy: auto (every row when affordable, else a sample "
+        "sized so each pair's standard error is about a fifth of the cut), all (or 0), or about N rows "
+        f"(default: {d.js_rows})",
     )
     p.add_argument(
         "--group-threshold",

@@ -7,7 +7,8 @@ Files (all written atomically):
                       redundancy groups, pruning choice and cautions
 ``heads.csv``         one row per head: layer, head, ``<metric>_mean``, ``<metric>_std``
                       for every name in METRIC_NAMES, importance, importance_raw
-``similar_pairs.csv`` layer_a, head_a, layer_b, head_b, js_divergence (bits), most similar first
+``similar_pairs.csv`` layer_a, head_a, layer_b, head_b, js_divergence (bits), js_standard_error (bits;
+                      0 when every row was compared), most similar first
 ``pruning.csv``       order, step, heads_removed, fraction_removed, accuracy, removed_layer, removed_head
 ``prune_mask.json``   ``{"layer": [head, ...]}`` (layer keys as strings, counting from 0)
 figures               confusion_matrix, head_importance, head_similarity, pruning_curve (.png and .svg)
@@ -48,7 +49,7 @@ HEADS_HEADER: tuple[str, ...] = (
     "importance",
     "importance_raw",
 )
-SIMILAR_PAIRS_HEADER = ("layer_a", "head_a", "layer_b", "head_b", "js_divergence")
+SIMILAR_PAIRS_HEADER = ("layer_a", "head_a", "layer_b", "head_b", "js_divergence", "js_standard_error")
 PRUNING_HEADER = (
     "order",
     "step",
@@ -131,9 +132,12 @@ def summary_dict(report: CorpusReport) -> dict:
         "log_base": 2,
         "unit": "bits",
         "group_threshold": red.threshold,
-        "grouping": "complete linkage: every pair inside a group is within the threshold",
+        "grouping": "complete linkage: every pair inside a group is within the threshold, counting a pair's "
+        "divergence plus twice its standard error",
         "rows_total": red.rows_total,
         "rows_compared": red.rows_compared,
+        "rows": "every real query row" if not red.sampled else "a simple random sample of real query rows",
+        "largest_standard_error": red.largest_standard_error,
         "groups": [[_head(l, h) for l, h in g] for g in red.groups],
         "most_similar": [
             {
@@ -141,6 +145,7 @@ def summary_dict(report: CorpusReport) -> dict:
                 "layer_b": p.layer_b,
                 "head_b": p.head_b,
                 "js_divergence": p.js_divergence,
+                "standard_error": p.standard_error,
             }
             for p in red.pairs()[:_TOP]
         ],
@@ -208,7 +213,7 @@ def write_report(report: CorpusReport, folder: str | Path, *, figures: bool = Tr
                 folder / SIMILAR_PAIRS,
                 SIMILAR_PAIRS_HEADER,
                 (
-                    [p.layer_a, p.head_a, p.layer_b, p.head_b, p.js_divergence]
+                    [p.layer_a, p.head_a, p.layer_b, p.head_b, p.js_divergence, p.standard_error]
                     for p in report.redundancy.pairs()
                 ),
             )

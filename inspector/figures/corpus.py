@@ -142,8 +142,8 @@ def similarity_figure(redundancy: Redundancy) -> Figure:
     _caption(
         fig,
         f"Within each layer block heads run {fmt.head_tick(0)}..{fmt.head_tick(heads - 1)}. Groups: complete "
-        f"linkage at {fmt.bits(redundancy.threshold)}; {redundancy.rows_compared} of "
-        f"{fmt.count(redundancy.rows_total, 'query row')} compared.",
+        f"linkage at {fmt.bits(redundancy.threshold)} (divergence + 2 standard errors); "
+        f"{redundancy.rows_compared} of {fmt.count(redundancy.rows_total, 'query row')} compared.",
     )
     return fig
 
