@@ -111,3 +111,48 @@ def test_no_socket_is_opened_during_load_and_analysis(bert_dir, monkeypatch):
     result.value_weighted  # noqa: B018
     result.flow(queries=[0])
     assert calls == []
+
+
+def test_conversion_recipe_run_as_printed_keeps_the_classifier(bert_dir, tmp_path, capsys):
+    """The refusal's recipe, run as printed, gives a folder that analyze opens with --allow-pickle's prediction.
+
+    ``--allow-pickle`` itself prints nothing on stderr (no library warnings before the answer).
+
+    Reference: transformers' from_pretrained/save_pretrained round trip of the class the config names
+    (BertForSequenceClassification, so the classifier head is kept), checked against the prediction
+    read from the original pickle file through torch's weights-only loader.
+    """
+    import re
+    import shlex
+    import subprocess
+    import sys
+
+    from inspector.cli.main import main
+
+    original = _copy(bert_dir, tmp_path, "original")
+    state = load_checkpoint(original).model.state_dict()
+    (original / "model.safetensors").unlink()
+    torch.save(state, original / "pytorch_model.bin")
+    converted = _copy(original, tmp_path, "converted")
+    with pytest.raises(HeadcountError) as info:
+        load_checkpoint(converted)
+    recipe = re.search(r"(python -c '[^']*')", str(info.value)).group(1)
+    argv = shlex.split(recipe)
+    assert argv[0] == "python" and "BertForSequenceClassification" in argv[2]
+    env = dict(os.environ, HF_HUB_OFFLINE="1", TRANSFORMERS_OFFLINE="1")
+    done = subprocess.run([sys.executable, *argv[1:]], capture_output=True, text=True, env=env, timeout=300)
+    assert done.returncode == 0, done.stderr
+    text = "is the early ferry to Gullholm running"
+    code = "import sys; from ui.launcher import main; raise SystemExit(main(sys.argv[1:]))"
+    argv = ["analyze", str(original), "--text", text, "--json", "--allow-pickle"]
+    done = subprocess.run(
+        [sys.executable, "-c", code, *argv], capture_output=True, text=True, env=env, timeout=300
+    )
+    assert done.returncode == 0 and done.stderr == "", done.stderr  # no library warnings before the answer
+    opted = json.loads(done.stdout)
+    assert main(["analyze", str(converted), "--text", text, "--json"]) == 0
+    safe = json.loads(capsys.readouterr().out)
+    assert safe["prediction"] is not None
+    assert safe["prediction"]["label"] == opted["prediction"]["label"]
+    for label, p in opted["prediction"]["probabilities"].items():
+        assert safe["prediction"]["probabilities"][label] == pytest.approx(p, abs=1e-6)

@@ -83,6 +83,19 @@ def encode(lm: LoadedModel, texts: Sequence[str], max_length: int | None = None)
     return Batch(ids, mask, tokens, special, word_ids, real_index, extra)
 
 
+NON_FINITE = "the model produced NaN or infinite values on this text ({what}); its weights overflow"
+
+
+def require_finite(what: str, *arrays: np.ndarray | torch.Tensor | None) -> None:
+    """Raise a one-line error if any array holds NaN or infinity (``what`` names them)."""
+    for a in arrays:
+        if a is None:
+            continue
+        finite = torch.isfinite(a).all() if isinstance(a, torch.Tensor) else np.isfinite(a).all()
+        if not bool(finite):
+            raise HeadcountError(NON_FINITE.format(what=what))
+
+
 class _CallCounter:
     """Counts calls of hooked modules within one forward pass."""
 
@@ -310,6 +323,7 @@ def run(
         out = lm.model(**batch.model_inputs())
         attention = rec.attention().numpy()
         logits = out.logits.numpy() if lm.has_prediction else None
+        require_finite("attention weights or logits", attention, logits)
         cap = Capture(batch=batch, attention=attention, logits=logits)
         if values:
             n_b, n_t = batch.input_ids.shape

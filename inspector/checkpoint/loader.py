@@ -114,6 +114,11 @@ def _check_dimensions(config: dict, cfg_path: Path) -> None:
             continue
         if isinstance(value, bool) or not isinstance(value, int) or value < 1:
             raise HeadcountError(f"{cfg_path}: {key} must be a positive whole number, not {value!r}")
+    for key in ("id2label", "label2id"):
+        if config.get(key) is not None and not isinstance(config[key], dict):
+            raise HeadcountError(
+                f"{cfg_path}: {key} must map label numbers and names, not a {type(config[key]).__name__}"
+            )
 
 
 def _pickle_files(folder: Path) -> list[str]:
@@ -124,7 +129,8 @@ def conversion_recipe(folder: Path, config: dict) -> str:
     """A shell command that rewrites pickle weights as safetensors, keeping the class the config names."""
     archs = config.get("architectures") or []
     name = archs[0] if archs and isinstance(archs[0], str) and archs[0].isidentifier() else "AutoModel"
-    code = f"from transformers import {name}; {name}.from_pretrained({str(folder)!r}).save_pretrained({str(folder)!r})"
+    where = json.dumps(str(folder))
+    code = f"from transformers import {name}; {name}.from_pretrained({where}).save_pretrained({where})"
     return f"python -c {shlex.quote(code)}"
 
 

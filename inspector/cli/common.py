@@ -3,8 +3,18 @@
 from __future__ import annotations
 
 import argparse
+import sys
+from typing import NoReturn
 
 EXIT_USER_ERROR = 2
+
+
+class OneLineParser(argparse.ArgumentParser):
+    """An argument parser whose usage errors are one line on stderr and exit status 2 (``--help`` still helps)."""
+
+    def error(self, message: str) -> NoReturn:
+        print(f"{self.prog}: error: {message} (see --help)", file=sys.stderr)
+        raise SystemExit(EXIT_USER_ERROR)
 
 
 def _whole_number(text: str, low: int, what: str) -> int:

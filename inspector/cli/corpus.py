@@ -10,13 +10,18 @@ on stderr.
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 from dataclasses import replace
-from typing import NoReturn
 
 from inspector import formatting as fmt
-from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model, non_negative_int
+from inspector.cli.common import (
+    add_mask_option,
+    add_model_command,
+    load_mask,
+    load_model,
+    non_negative_int,
+    positive_int,
+)
 from inspector.corpus.dataset import BAD_ROW_POLICIES, read_labelled
 from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
 from inspector.corpus.settings import CorpusSettings
@@ -42,7 +47,10 @@ def _js_rows(text: str) -> int | str | None:
         return "auto"
     if text.strip().lower() == "all":
         return None
-    value = non_negative_int(text)
+    try:
+        value = non_negative_int(text)
+    except argparse.ArgumentTypeError:
+        raise argparse.ArgumentTypeError(f"expected auto, all or a number of rows, got {text!r}") from None
     return None if value == 0 else value
 
 
@@ -146,10 +154,12 @@ def _print_report(summary: dict, out_dir: str, out) -> None:
 
 
 def cmd_corpus(args: argparse.Namespace) -> int:
-    from inspector.corpus.report import summary_dict, write_report
+    from inspector.corpus.report import check_report_folder, summary_dict, write_report
     from inspector.corpus.run import run_corpus
+    from inspector.figures.files import json_text
 
     settings = settings_from_args(args)
+    check_report_folder(args.out)
     lm = load_model(args)
     mask = load_mask(args, lm)
     if mask is not None:
@@ -171,8 +181,7 @@ def cmd_corpus(args: argparse.Namespace) -> int:
     write_report(report, args.out, figures=not args.no_figures)
     summary = summary_dict(report)
     if args.json:
-        json.dump(summary, sys.stdout, ensure_ascii=False)
-        sys.stdout.write("\n")
+        sys.stdout.write(json_text(summary, ensure_ascii=False) + "\n")
     else:
         _print_report(summary, args.out, sys.stdout)
     return 0
@@ -192,16 +201,11 @@ def add_data_options(p: argparse.ArgumentParser, batch_size: int) -> None:
         help="skip bad rows and list them, or fail (default: skip)",
     )
     p.add_argument(
-        "--batch-size", type=int, default=batch_size, help=f"utterances per batch (default: {batch_size})"
+        "--batch-size",
+        type=positive_int,
+        default=batch_size,
+        help=f"utterances per batch (default: {batch_size})",
     )
-
-
-def _one_line_error(parser: argparse.ArgumentParser):
-    def error(message: str) -> NoReturn:
-        print(f"headcount {parser.prog.split()[-1]}: error: {message}", file=sys.stderr)
-        raise SystemExit(2)
-
-    return error
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -212,7 +216,6 @@ def register(sub: argparse._SubParsersAction) -> None:
         "analyse a labelled evaluation set: accuracy, misfires, "
         "head importance, redundancy and a pruning simulation",
     )
-    p.error = _one_line_error(p)  # type: ignore[method-assign]
     d = CorpusSettings()
     p.epilog = (
         f"Pruning: {CAUTION} Files: summary.json, heads.csv, similar_pairs.csv, pruning.csv, "
@@ -245,21 +248,21 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--remove",
-        type=int,
+        type=non_negative_int,
         default=None,
         metavar="N",
         help="export exactly the first N heads of the mask order instead",
     )
     p.add_argument(
         "--prune-every",
-        type=int,
+        type=positive_int,
         default=d.prune_every,
         metavar="K",
         help="measure accuracy after every K removed heads (default: 1, exact)",
     )
     p.add_argument(
         "--prune-subset",
-        type=int,
+        type=positive_int,
         default=None,
         metavar="N",
         help="evaluate pruning steps on N utterances drawn with the seed (default: all)",
@@ -282,7 +285,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--seed",
-        type=int,
+        type=non_negative_int,
         default=d.seed,
         help=f"seed for the random order and row draws (default: {d.seed})",
     )

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 from pathlib import Path
 from typing import TextIO
@@ -11,7 +10,14 @@ from typing import TextIO
 import numpy as np
 
 from inspector import formatting as fmt
-from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model, mask_record
+from inspector.cli.common import (
+    add_mask_option,
+    add_model_command,
+    load_mask,
+    load_model,
+    mask_record,
+    positive_int,
+)
 from inspector.errors import HeadcountError
 from inspector.explanation.explain import CAUTION, RULE_NAMES, LabelEvidence, SentenceExplanation
 from inspector.explanation.faithfulness import METHOD_LABELS
@@ -204,17 +210,22 @@ def print_comparison(cmp: WhatIfComparison, out: TextIO) -> None:
 
 
 def cmd_explain(args: argparse.Namespace) -> int:
+    from inspector.checkpoint.tokens import text_problem
     from inspector.explanation.explain import explain_sentence, require_classifier
     from inspector.explanation.whatif import compare_sentences
+    from inspector.figures.files import check_output_file, json_text
 
-    if not args.text or not args.text.strip():
-        raise HeadcountError("--text is empty")
+    for option, text in (("--text", args.text), ("--compare", args.compare)):
+        problem = None if text is None else text_problem(text)
+        if problem:
+            raise HeadcountError(f"{option}: {problem}")
     if args.steps < 2:
         raise HeadcountError("--steps must be at least 2")
     if args.figure:
         from inspector.figures.explanation import check_figure_path
 
         check_figure_path(Path(args.figure))
+        check_output_file(args.figure)
     lm = load_model(args)
     require_classifier(lm)
     options = dict(
@@ -240,8 +251,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
         doc = explanation_json(explanation)
         if comparison is not None:
             doc["compare"] = comparison_json(comparison)
-        json.dump(doc, sys.stdout, allow_nan=False)
-        sys.stdout.write("\n")
+        sys.stdout.write(json_text(doc) + "\n")
         return 0
     print_explanation(explanation, sys.stdout)
     if comparison is not None:
@@ -261,7 +271,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument("--text", required=True, help="the sentence to explain")
     p.add_argument("--expected", metavar="LABEL", help="the label the sentence should have had")
-    p.add_argument("--steps", type=int, default=64, help="Integrated Gradients steps (default 64)")
+    p.add_argument(
+        "--steps", type=positive_int, default=64, help="Integrated Gradients steps, at least 2 (default 64)"
+    )
     p.add_argument(
         "--occlusion",
         choices=OCCLUSION_MODES,
@@ -286,7 +298,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         help="per-head metric for --compare (default entropy)",
     )
     p.add_argument(
-        "--top", type=int, default=5, help="how many most-changed heads --compare lists (default 5)"
+        "--top", type=positive_int, default=5, help="how many most-changed heads --compare lists (default 5)"
     )
     p.add_argument("--json", action="store_true", help="print one JSON object instead of text")
     p.add_argument("--figure", metavar="FILE", help="write a figure of the relevances (.png, .svg or .pdf)")

@@ -22,7 +22,7 @@ from inspector.checkpoint.masks import mask_json
 from inspector.corpus.dataset import LabelledSet
 from inspector.corpus.pruning import CAUTION
 from inspector.corpus.run import CorpusReport
-from inspector.figures.files import save_csv, save_json
+from inspector.figures.files import check_output_folder, replace_folder, save_csv, save_json
 from inspector.measures.metrics import METRIC_NAMES
 
 SUMMARY = "summary.json"
@@ -200,11 +200,38 @@ def pruning_rows(report: CorpusReport) -> list[list[object]]:
     return rows
 
 
+def report_file(name: str) -> bool:
+    """True for a file name a corpus report writes (so an earlier report's folder may be replaced)."""
+    stems = set(FIGURES.values())
+    figure = "." in name and name.rsplit(".", 1)[0] in stems and name.rsplit(".", 1)[1] in ("png", "svg")
+    return name in (SUMMARY, HEADS, SIMILAR_PAIRS, PRUNING, PRUNE_MASK) or figure
+
+
+def check_report_folder(folder: str | Path) -> Path:
+    """Refuse, before a run, a report folder that cannot be written or holds files of something else."""
+    return check_output_folder(folder, report_file)
+
+
 def write_report(report: CorpusReport, folder: str | Path, *, figures: bool = True) -> dict[str, list[Path]]:
-    """Write every output file of a corpus run into ``folder``; returns name -> written paths."""
+    """Write every output file of a corpus run into ``folder``; returns name -> written paths.
+
+    The files are written into a fresh folder beside ``folder`` and swapped in
+    whole, so ``folder`` never mixes files of two runs (an earlier report there
+    is replaced; a folder holding anything else is refused).
+    """
+    folder = check_report_folder(folder)
+    written: dict[str, list[Path]] = {}
+
+    def fill(tmp: Path) -> None:
+        written.update(_write_files(report, tmp, figures))
+
+    replace_folder(folder, fill)
+    return {key: [folder / p.name for p in paths] for key, paths in written.items()}
+
+
+def _write_files(report: CorpusReport, folder: Path, figures: bool) -> dict[str, list[Path]]:
     from inspector.figures import corpus as plots
 
-    folder = Path(folder)
     written: dict[str, list[Path]] = {
         "summary": [save_json(folder / SUMMARY, summary_dict(report))],
         "heads": [save_csv(folder / HEADS, HEADS_HEADER, heads_rows(report))],

@@ -42,7 +42,7 @@ import numpy as np
 import torch
 
 from inspector import formatting as fmt
-from inspector.checkpoint.capture import AttentionRecorder, HeadGates
+from inspector.checkpoint.capture import AttentionRecorder, HeadGates, require_finite
 from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask, masked
 from inspector.corpus.batching import EncodedSet, PaddedBatch, encode_set, length_limit
@@ -466,6 +466,7 @@ def scan(
             with torch.inference_mode():
                 logits = lm.model(**batch.inputs).logits
                 att = rec.attention()
+                require_finite("attention weights or logits", logits, att)
                 reach = window_reach(lm.windows, att.shape[-1])
                 found = head_metrics(
                     att, batch.special[:, None, None, :], batch.mask[:, None, None, :], reach=reach
@@ -553,6 +554,7 @@ def importance_pass(
     acc = ImportanceAccumulator(lm.num_layers, lm.num_heads)
     for index in progress.batches(encoded.sorted_batches(batch_size)):
         grads, losses = gate_gradients(lm, encoded.batch(index), torch.from_numpy(gold[index]))
+        require_finite("gate gradients or losses", grads, losses)
         acc.add(grads, losses)
     return acc.result()
 
