@@ -13,7 +13,7 @@ bits): inside a group *every* pair of heads is within the threshold, so chains
 of pairwise-close heads that drift apart are not merged into one group.
 
 Which rows are compared (the rule README states): every real query row when
-the whole set's comparisons fit :data:`COMPARISON_BUDGET`; otherwise a simple
+the whole set's comparisons fit the scan budget (:func:`comparison_budget`); otherwise a simple
 random sample of rows whose size comes from the data: a pilot of
 :data:`PILOT_UTTERANCES` utterances gives each pair's spread, and the sample is
 made large enough that the largest standard error is about
@@ -50,9 +50,16 @@ similar length; the threshold is a setting (CLI ``--group-threshold``).
 """
 DEFAULT_JS_ROWS = "auto"
 """Rows compared in a corpus scan: ``auto`` (the rule above), None (every row) or a sample size."""
-COMPARISON_BUDGET = 20_000_000
-"""Comparisons a scan may spend on redundancy before it samples rows: rows x head pairs x keys
-(about a second of one laptop core). A set whose every row fits is compared exactly."""
+COMPARISON_FLOOR = 20_000_000
+"""Comparisons (rows x head pairs x keys) any scan may spend on redundancy: about a fifth of a second of
+one core (bench/bench_corpus.py measured 100-250 million per second on a 2-core machine)."""
+FORWARD_SHARE = 0.1
+"""Beyond the floor, redundancy may cost about this share of the set's forward pass, which keeps the
+scan near its throughput target (README, speed table)."""
+FLOPS_PER_COMPARISON = 400
+"""Forward-pass floating-point operations that take as long as one comparison (bench/bench_corpus.py: the
+bare forward of the sample model and of all-MiniLM-L6-v2 ran at 35-47 GFLOP/s, the comparisons at
+about 110 million per second, on one thread of the same loaded 2-core machine)."""
 PILOT_UTTERANCES = 32
 """Utterances whose rows give each pair's spread, to size a sample."""
 TARGET_SE_FRACTION = 0.2
@@ -158,15 +165,15 @@ def pairwise_js_moments(
                 js = (mix - (own_r[:, a : a + block, None] + own_r[:, None, b : b + block]) * 0.5).clamp_(
                     min=0.0
                 )
-                js = js.double().div_(LN2)
                 sq = js * js
                 if weights is not None:
                     w = weights[r : r + step, None, None].to(js.dtype)
                     js.mul_(w)
                     sq.mul_(w)
-                out[a : a + block, b : b + block] += js.sum(0)
-                out_sq[a : a + block, b : b + block] += sq.sum(0)
-    out, out_sq = torch.triu(out, diagonal=1), torch.triu(out_sq, diagonal=1)
+                out[a : a + block, b : b + block] += js.sum(0, dtype=torch.float64)
+                out_sq[a : a + block, b : b + block] += sq.sum(0, dtype=torch.float64)
+    out = torch.triu(out / LN2, diagonal=1)  # nats -> bits
+    out_sq = torch.triu(out_sq / (LN2 * LN2), diagonal=1)
     return out + out.T, out_sq + out_sq.T
 
 
@@ -284,6 +291,17 @@ def sample_size(largest_variance: float, target_se: float, population_rows: int)
     n0 = largest_variance / max(target_se, 1e-12) ** 2
     n = math.ceil(n0 / (1.0 + n0 / max(population_rows, 1)))
     return int(min(population_rows, max(n, MIN_SAMPLE_ROWS)))
+
+
+def comparison_budget(encoder_parameters: int, tokens: int) -> float:
+    """Comparisons a scan may spend on redundancy: the floor, or a share of the forward pass if larger.
+
+    ``max(COMPARISON_FLOOR, FORWARD_SHARE * 2 * P * T / FLOPS_PER_COMPARISON)`` with P the encoder's
+    parameters (embedding table excluded) and T the set's tokens; ``2 P T`` counts the forward pass's
+    multiply-adds (Kaplan et al. 2020, "Scaling Laws for Neural Language Models", sec. 2.1).
+    """
+    forward = 2.0 * encoder_parameters * tokens
+    return max(float(COMPARISON_FLOOR), FORWARD_SHARE * forward / FLOPS_PER_COMPARISON)
 
 
 def comparison_cost(lengths: np.ndarray, heads_total: int) -> float:

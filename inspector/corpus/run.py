@@ -19,7 +19,7 @@ the misfire list.
 
 Rows compared for redundancy: comparing every pair of heads on every real query
 row costs ``pairs x rows x keys``. With ``js_rows="auto"`` (the default) every
-row is compared when that fits the comparison budget; otherwise a pilot of a few
+row is compared when that fits the scan budget (comparison_budget); otherwise a pilot of a few
 utterances measures how much each pair's divergence varies from row to row, and
 each real row is kept with one common probability (seeded) so that the expected
 sample gives every pair a standard error of about a fifth of the near-duplicate
@@ -58,13 +58,13 @@ from inspector.corpus.pruning import (
     step_counts,
 )
 from inspector.corpus.redundancy import (
-    COMPARISON_BUDGET,
     DEFAULT_GROUP_THRESHOLD,
     DEFAULT_JS_ROWS,
     PILOT_UTTERANCES,
     TARGET_SE_FRACTION,
     DivergenceSums,
     Redundancy,
+    comparison_budget,
     comparison_cost,
     sample_size,
 )
@@ -320,6 +320,8 @@ def _check_classifier(lm: LoadedModel) -> None:
 
 _PILOT_ROWS = 256
 """At most this many pilot rows are compared to estimate the pairs' spread."""
+SAMPLE_WORTH = 0.75
+"""Rows are sampled only when the pilot and the sample together compare fewer than this share of all rows."""
 
 
 def _real_rows(att: torch.Tensor, mask: torch.Tensor) -> torch.Tensor:
@@ -346,7 +348,7 @@ def plan_rows(
     js_rows: int | str | None,
     *,
     threshold: float,
-    budget: float,
+    budget: float | None,
     seed: int,
 ) -> RowPlan:
     """Every row when affordable (or asked for), else a sample sized from a pilot.
@@ -355,8 +357,9 @@ def plan_rows(
     ----------
     js_rows : 'auto', None or int
         ``auto``: every row if :func:`inspector.corpus.redundancy.comparison_cost` is within
-        ``budget``, else about :func:`inspector.corpus.redundancy.sample_size` rows (a standard
-        error of ``TARGET_SE_FRACTION * threshold`` for the pair that varies most in the pilot);
+        ``budget`` (None: :func:`inspector.corpus.redundancy.comparison_budget`), else about
+        :func:`inspector.corpus.redundancy.sample_size` rows (a standard error of
+        ``TARGET_SE_FRACTION * threshold`` for the pair that varies most in the pilot);
         None: every row; an int: about that many rows.
 
     References
@@ -370,6 +373,10 @@ def plan_rows(
     if js_rows != "auto":
         wanted = int(js_rows)
         return RowPlan(None if wanted >= total else wanted / total)
+    if budget is None:
+        embeddings = lm.model.get_input_embeddings().weight.numel()
+        encoder = sum(p.numel() for p in lm.model.parameters()) - embeddings
+        budget = comparison_budget(encoder, total)
     if comparison_cost(encoded.lengths, lm.num_layers * lm.num_heads) <= budget:
         return RowPlan(None)
     rng = np.random.default_rng(seed)
@@ -385,7 +392,9 @@ def plan_rows(
     var = sums.variance()
     largest = float(var[np.triu_indices(len(var), 1)].max()) if len(var) > 1 else 0.0
     n = sample_size(largest, TARGET_SE_FRACTION * threshold, total)
-    return RowPlan(None if n >= total else n / total, pilot_rows=int(rows.shape[0]))
+    if n + rows.shape[0] > SAMPLE_WORTH * total:  # sampling would save little: compare every row
+        return RowPlan(None, pilot_rows=int(rows.shape[0]))
+    return RowPlan(n / total, pilot_rows=int(rows.shape[0]))
 
 
 def scan(
@@ -398,7 +407,7 @@ def scan(
     group_threshold: float = DEFAULT_GROUP_THRESHOLD,
     seed: int = 0,
     redundancy: bool = True,
-    js_budget: float = COMPARISON_BUDGET,
+    js_budget: float | None = None,
     progress: Progress | None = None,
 ) -> ScanResult:
     """One streaming pass: predictions, per-head metric moments, pairwise head divergence.
@@ -422,8 +431,9 @@ def scan(
         Seed of the row draw.
     redundancy : bool
         Compute the pairwise divergences (False leaves them at 0; for benchmarks).
-    js_budget : float
-        Comparisons (rows x head pairs x keys) that may be spent before rows are sampled.
+    js_budget : float, optional
+        Comparisons (rows x head pairs x keys) that may be spent before rows are sampled
+        (default: :func:`inspector.corpus.redundancy.comparison_budget` for this model and set).
     progress : Progress, optional
 
     Returns

@@ -7,7 +7,7 @@ from typing import TYPE_CHECKING
 
 from inspector import formatting as fmt
 from inspector.corpus.pruning import PRUNING_ORDERS
-from inspector.corpus.redundancy import COMPARISON_BUDGET, DEFAULT_GROUP_THRESHOLD, DEFAULT_JS_ROWS
+from inspector.corpus.redundancy import DEFAULT_GROUP_THRESHOLD, DEFAULT_JS_ROWS
 from inspector.errors import HeadcountError
 
 if TYPE_CHECKING:
@@ -22,8 +22,9 @@ class CorpusSettings:
     js_rows: int | str | None = DEFAULT_JS_ROWS
     """Real query rows compared for redundancy: ``auto`` (every row when affordable, else a
     sample sized from a pilot), None (every row) or about this many rows."""
-    js_budget: float = COMPARISON_BUDGET
-    """Comparisons (rows x head pairs x keys) a scan may spend before ``auto`` samples rows."""
+    js_budget: float | None = None
+    """Comparisons (rows x head pairs x keys) a scan may spend before ``auto`` samples rows
+    (None: :func:`inspector.corpus.redundancy.comparison_budget` for the model and set)."""
     group_threshold: float = DEFAULT_GROUP_THRESHOLD
     importance: bool = True
     orders: tuple[str, ...] = ("importance", "random")
@@ -49,7 +50,7 @@ class CorpusSettings:
         if self.js_rows is not None and self.js_rows != "auto":
             if isinstance(self.js_rows, bool) or not isinstance(self.js_rows, int) or self.js_rows < 1:
                 raise HeadcountError("the number of rows compared must be 'auto', 'all' or at least 1")
-        if not self.js_budget >= 0:
+        if self.js_budget is not None and not self.js_budget >= 0:
             raise HeadcountError("the comparison budget must not be negative")
         if not 0 <= self.group_threshold <= 1:
             raise HeadcountError("the near-duplicate threshold is in bits and must lie in [0, 1]")
