@@ -15,7 +15,6 @@ import errno
 import json
 import os
 import shutil
-import socket
 import struct
 from collections.abc import Callable
 from pathlib import Path
@@ -27,6 +26,7 @@ from safetensors.torch import load_file, save_file
 from inspector.cli.main import main
 from tests.corpus_models import UTTERANCES, write_csv
 from tests.families import build_checkpoint
+from tests.network_trap import trap_network
 from tests.unwritable import read_only_folder
 
 TEXT = "can I take my van on the early ferry"
@@ -40,23 +40,8 @@ TEXT = "can I take my van on the early ferry"
 @pytest.fixture(scope="module", autouse=True)
 def socket_trap():
     """Every way out to the network raises and is recorded; at the end none may have been tried."""
-    calls: list[str] = []
     patch = pytest.MonkeyPatch()
-
-    def trap(name):
-        def refuse(*args, **kwargs):
-            calls.append(name)
-            raise OSError(f"network used: {name}")
-
-        return refuse
-
-    for owner, name in (
-        (socket.socket, "connect"),
-        (socket.socket, "connect_ex"),
-        (socket, "getaddrinfo"),
-        (socket, "create_connection"),
-    ):
-        patch.setattr(owner, name, trap(name))
+    calls = trap_network(patch)
     yield calls
     patch.undo()
     assert calls == [], f"network used while refusing hostile input: {calls}"

@@ -5,7 +5,6 @@ from __future__ import annotations
 import json
 import os
 import shutil
-import socket
 
 import pytest
 import torch
@@ -14,6 +13,7 @@ from inspector.checkpoint.loader import load_checkpoint
 from inspector.errors import HeadcountError
 from inspector.measures.analysis import analyze_sentence
 from tests.families import build_checkpoint
+from tests.network_trap import trap_network
 
 
 @pytest.fixture(scope="module")
@@ -92,19 +92,7 @@ def test_offline_mode_is_forced():
 def test_no_socket_is_opened_during_load_and_analysis(bert_dir, monkeypatch):
     """Reference: Python's socket module: every network connection goes through socket.socket.connect/
     connect_ex or getaddrinfo; all are trapped here and must never be called."""
-    calls: list[str] = []
-
-    def trap(name):
-        def refuse(*args, **kwargs):
-            calls.append(name)
-            raise OSError(f"network used: {name}")
-
-        return refuse
-
-    monkeypatch.setattr(socket.socket, "connect", trap("connect"))
-    monkeypatch.setattr(socket.socket, "connect_ex", trap("connect_ex"))
-    monkeypatch.setattr(socket, "getaddrinfo", trap("getaddrinfo"))
-    monkeypatch.setattr(socket, "create_connection", trap("create_connection"))
+    calls = trap_network(monkeypatch)
     lm = load_checkpoint(bert_dir)
     result = analyze_sentence(lm, "is the ramp at Crail Haven step free?")
     result.rollout  # noqa: B018

@@ -5,7 +5,6 @@ from __future__ import annotations
 import json
 import os
 import shutil
-import socket
 
 import pytest
 
@@ -14,6 +13,7 @@ from inspector.checkpoint.sources import hub_cache, resolve_source
 from inspector.cli.main import main
 from inspector.errors import HeadcountError
 from tests.families import build_checkpoint
+from tests.network_trap import trap_network
 
 COMMIT = "0123456789abcdef0123456789abcdef01234567"
 TEXT = "can i change my booking to the 9:15 ferry"
@@ -41,23 +41,7 @@ def build_hub_cache(root, repo_id: str, source) -> None:
 @pytest.fixture
 def no_network(monkeypatch):
     """Every way out to the network raises and is recorded."""
-    calls: list[str] = []
-
-    def trap(name):
-        def refuse(*args, **kwargs):
-            calls.append(name)
-            raise OSError(f"network used: {name}")
-
-        return refuse
-
-    for owner, name in (
-        (socket.socket, "connect"),
-        (socket.socket, "connect_ex"),
-        (socket, "getaddrinfo"),
-        (socket, "create_connection"),
-    ):
-        monkeypatch.setattr(owner, name, trap(name))
-    return calls
+    return trap_network(monkeypatch)
 
 
 def test_repo_id_resolves_offline_from_a_hub_cache_layout(tmp_path, tiny, monkeypatch, no_network, capsys):

@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import re
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any, Literal
 
 from torch import Tensor, nn
@@ -121,15 +121,7 @@ _BERT_LIKE = Family(
     value="attention.self.value",
     out_proj="attention.output.dense",
 )
-_ROBERTA_LIKE = Family(
-    blocks=_BERT_LIKE.blocks,
-    attention=_BERT_LIKE.attention,
-    query=_BERT_LIKE.query,
-    key=_BERT_LIKE.key,
-    value=_BERT_LIKE.value,
-    out_proj=_BERT_LIKE.out_proj,
-    position_offset=True,
-)
+_ROBERTA_LIKE = replace(_BERT_LIKE, position_offset=True)
 
 
 def _modernbert_windows(config: Any) -> list[int | None]:
@@ -216,16 +208,7 @@ FAMILIES: dict[str, Family] = {
         positions="relative",
         position_offset=True,
     ),
-    "roformer": Family(
-        blocks=r"encoder\.layer\.\d+",
-        attention="attention.self",
-        query="attention.self.query",
-        key="attention.self.key",
-        value="attention.self.value",
-        out_proj="attention.output.dense",
-        positions="rotary-pairs",
-        variant_problem=_roformer_variant,
-    ),
+    "roformer": replace(_BERT_LIKE, positions="rotary-pairs", variant_problem=_roformer_variant),
     "modernbert": Family(
         blocks=r"layers\.\d+",
         attention="attn",
