@@ -26,7 +26,13 @@ from typing import Literal
 import inspector  # noqa: F401  (forces offline mode before transformers loads)
 from inspector.checkpoint.families import Family, LayerParts, block_index_pattern, family_for, layer_parts
 from inspector.checkpoint.sources import resolve_source
-from inspector.checkpoint.weights import TensorInfo, first_few, read_headers, safetensors_files
+from inspector.checkpoint.weights import (
+    TensorInfo,
+    first_few,
+    read_headers,
+    read_json_file,
+    safetensors_files,
+)
 from inspector.errors import HeadcountError
 
 Task = Literal["sequence-classification", "token-classification", "encoder"]
@@ -95,12 +101,7 @@ def _read_config(folder: Path) -> dict:
         except PermissionError:
             raise HeadcountError(f"{folder}: not readable (permission denied)") from None
         raise HeadcountError(f"{folder}: no config.json here; is this a checkpoint folder?")
-    try:
-        config = json.loads(cfg_path.read_text(encoding="utf-8"))
-    except PermissionError:
-        raise HeadcountError(f"{cfg_path}: not readable (permission denied)") from None
-    except (OSError, UnicodeDecodeError, ValueError, RecursionError) as exc:
-        raise HeadcountError(f"{cfg_path}: not a readable JSON config ({exc})") from None
+    config = read_json_file(cfg_path, "not a readable JSON config")
     if not isinstance(config, dict) or "model_type" not in config:
         raise HeadcountError(f"{cfg_path}: the config has no model_type")
     return config

@@ -123,13 +123,18 @@ def read_header(path: Path) -> dict[str, TensorInfo]:
         raise HeadcountError(f"{path.name}: damaged safetensors file ({exc})") from None
 
 
-def _shard_names(index: Path) -> list[str]:
+def read_json_file(path: Path, problem: str) -> object:
+    """Parse a small JSON file, or raise one line: ``{path}: {problem} ({why})`` (or permission denied)."""
     try:
-        doc = json.loads(index.read_text(encoding="utf-8"))
+        return json.loads(path.read_text(encoding="utf-8"))
     except PermissionError:
-        raise HeadcountError(f"{index}: not readable (permission denied)") from None
+        raise HeadcountError(f"{path}: not readable (permission denied)") from None
     except (OSError, UnicodeDecodeError, ValueError, RecursionError) as exc:
-        raise HeadcountError(f"{index.name}: unreadable shard index ({exc})") from None
+        raise HeadcountError(f"{path}: {problem} ({exc})") from None
+
+
+def _shard_names(index: Path) -> list[str]:
+    doc = read_json_file(index, "unreadable shard index")
     if not isinstance(doc, dict):
         raise HeadcountError(f"{index.name}: the shard index is a JSON {type(doc).__name__}, not an object")
     weight_map = doc.get("weight_map")
