@@ -231,7 +231,7 @@ def main() -> None:
 
     transformers.utils.logging.set_verbosity_error()
     transformers.utils.logging.disable_progress_bar()
-    print(f"torch threads: {torch.get_num_threads()}; JS rows compared per batch: {CorpusSettings().js_rows}")
+    print(f"torch threads: {torch.get_num_threads()}; JS rows compared: {CorpusSettings().js_rows}")
     if args.at_size:
         with tempfile.TemporaryDirectory() as tmp:
             at_size(Path(tmp) / "base_sized")

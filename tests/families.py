@@ -26,7 +26,51 @@ CONFIGS = {
         vocab_size=v, **SMALL, relative_attention=True, pos_att_type=["p2c", "c2p"], max_relative_positions=64
     ),
     "mpnet": lambda v: transformers.MPNetConfig(vocab_size=v, **SMALL),
+    "camembert": lambda v: transformers.CamembertConfig(vocab_size=v, **SMALL, pad_token_id=0),
+    "data2vec-text": lambda v: transformers.Data2VecTextConfig(vocab_size=v, **SMALL, pad_token_id=0),
+    "xlm-roberta-xl": lambda v: transformers.XLMRobertaXLConfig(vocab_size=v, **SMALL, pad_token_id=0),
+    "ernie": lambda v: transformers.ErnieConfig(vocab_size=v, **SMALL),
+    "megatron-bert": lambda v: transformers.MegatronBertConfig(vocab_size=v, **SMALL),
+    "mobilebert": lambda v: transformers.MobileBertConfig(
+        vocab_size=v,
+        hidden_size=32,
+        embedding_size=16,
+        true_hidden_size=16,
+        intra_bottleneck_size=16,
+        num_hidden_layers=2,
+        num_attention_heads=4,
+        intermediate_size=32,
+        num_feedforward_networks=2,
+    ),
+    "roformer": lambda v: transformers.RoFormerConfig(vocab_size=v, embedding_size=32, **SMALL),
+    "deberta": lambda v: transformers.DebertaConfig(
+        vocab_size=v, **SMALL, relative_attention=True, pos_att_type=["p2c", "c2p"], max_relative_positions=64
+    ),
+    # Layer 0 attends globally, layer 1 within a window of 2 tokens each side (local_attention = 4).
+    "modernbert": lambda v: transformers.ModernBertConfig(
+        vocab_size=v,
+        **SMALL,
+        local_attention=4,
+        global_attn_every_n_layers=2,
+        pad_token_id=0,
+        cls_token_id=101,
+        sep_token_id=102,
+        bos_token_id=101,
+        eos_token_id=102,
+    ),
 }
+NEW_FAMILIES = (
+    "camembert",
+    "data2vec-text",
+    "xlm-roberta-xl",
+    "ernie",
+    "megatron-bert",
+    "mobilebert",
+    "roformer",
+    "deberta",
+    "modernbert",
+)
+"""The families added with fused projections, rotary positions and local windows (issue 11)."""
 
 LABELS = ["book_crossing", "cancel_booking", "timetable"]
 
@@ -36,7 +80,7 @@ def build_checkpoint(
 ) -> Path:
     """Save a seeded random ``family`` model (classifier or bare encoder) into ``folder``.
 
-    ``shape`` overrides config fields (e.g. ``num_hidden_layers=12, num_attention_heads=12``).
+    ``shape`` overrides config fields (e.g. ``num_hidden_layers=12`` or ``relative_attention=False``).
     """
     tok = transformers.AutoTokenizer.from_pretrained(str(tokenizer_dir), local_files_only=True)
     config = CONFIGS[family](len(tok))

@@ -132,9 +132,9 @@ def test_cli_json_on_jsonl_with_field_names(files, capsys):
 @pytest.mark.parametrize(
     "argv_tail, needle",
     [
-        (["--batch-size", "0"], "batch size"),
+        (["--batch-size", "0"], "--batch-size"),
         (["--orders", "importance,alphabetical"], "alphabetical"),
-        (["--batch-size", "many"], "invalid int"),
+        (["--batch-size", "many"], "whole number"),
         (["--on-bad-row", "fail"], "bad row"),
         (["--max-drop", "5"], "tolerance"),
     ],

@@ -5,7 +5,6 @@ from __future__ import annotations
 import json
 import os
 import shutil
-import socket
 
 import pytest
 import torch
@@ -14,6 +13,7 @@ from inspector.checkpoint.loader import load_checkpoint
 from inspector.errors import HeadcountError
 from inspector.measures.analysis import analyze_sentence
 from tests.families import build_checkpoint
+from tests.network_trap import trap_network
 
 
 @pytest.fixture(scope="module")
@@ -92,22 +92,55 @@ def test_offline_mode_is_forced():
 def test_no_socket_is_opened_during_load_and_analysis(bert_dir, monkeypatch):
     """Reference: Python's socket module: every network connection goes through socket.socket.connect/
     connect_ex or getaddrinfo; all are trapped here and must never be called."""
-    calls: list[str] = []
-
-    def trap(name):
-        def refuse(*args, **kwargs):
-            calls.append(name)
-            raise OSError(f"network used: {name}")
-
-        return refuse
-
-    monkeypatch.setattr(socket.socket, "connect", trap("connect"))
-    monkeypatch.setattr(socket.socket, "connect_ex", trap("connect_ex"))
-    monkeypatch.setattr(socket, "getaddrinfo", trap("getaddrinfo"))
-    monkeypatch.setattr(socket, "create_connection", trap("create_connection"))
+    calls = trap_network(monkeypatch)
     lm = load_checkpoint(bert_dir)
     result = analyze_sentence(lm, "is the ramp at Crail Haven step free?")
     result.rollout  # noqa: B018
     result.value_weighted  # noqa: B018
     result.flow(queries=[0])
     assert calls == []
+
+
+def test_conversion_recipe_run_as_printed_keeps_the_classifier(bert_dir, tmp_path, capsys):
+    """The refusal's recipe, run as printed, gives a folder that analyze opens with --allow-pickle's prediction.
+
+    ``--allow-pickle`` itself prints nothing on stderr (no library warnings before the answer).
+
+    Reference: transformers' from_pretrained/save_pretrained round trip of the class the config names
+    (BertForSequenceClassification, so the classifier head is kept), checked against the prediction
+    read from the original pickle file through torch's weights-only loader.
+    """
+    import re
+    import shlex
+    import subprocess
+    import sys
+
+    from inspector.cli.main import main
+
+    original = _copy(bert_dir, tmp_path, "original")
+    state = load_checkpoint(original).model.state_dict()
+    (original / "model.safetensors").unlink()
+    torch.save(state, original / "pytorch_model.bin")
+    converted = _copy(original, tmp_path, "converted")
+    with pytest.raises(HeadcountError) as info:
+        load_checkpoint(converted)
+    recipe = re.search(r"(python -c '[^']*')", str(info.value)).group(1)
+    argv = shlex.split(recipe)
+    assert argv[0] == "python" and "BertForSequenceClassification" in argv[2]
+    env = dict(os.environ, HF_HUB_OFFLINE="1", TRANSFORMERS_OFFLINE="1")
+    done = subprocess.run([sys.executable, *argv[1:]], capture_output=True, text=True, env=env, timeout=300)
+    assert done.returncode == 0, done.stderr
+    text = "is the early ferry to Gullholm running"
+    code = "import sys; from ui.launcher import main; raise SystemExit(main(sys.argv[1:]))"
+    argv = ["analyze", str(original), "--text", text, "--json", "--allow-pickle"]
+    done = subprocess.run(
+        [sys.executable, "-c", code, *argv], capture_output=True, text=True, env=env, timeout=300
+    )
+    assert done.returncode == 0 and done.stderr == "", done.stderr  # no library warnings before the answer
+    opted = json.loads(done.stdout)
+    assert main(["analyze", str(converted), "--text", text, "--json"]) == 0
+    safe = json.loads(capsys.readouterr().out)
+    assert safe["prediction"] is not None
+    assert safe["prediction"]["label"] == opted["prediction"]["label"]
+    for label, p in opted["prediction"]["probabilities"].items():
+        assert safe["prediction"]["probabilities"][label] == pytest.approx(p, abs=1e-6)

@@ -147,7 +147,11 @@ def test_failed_export_leaves_no_partial_file(page, tmp_path, monkeypatch):
 
     monkeypatch.setattr(files.os, "fsync", broken_fsync)
     target = tmp_path / "out" / "closeup.pdf"
-    with pytest.raises(OSError, match="disk full"):
+    from inspector.errors import HeadcountError
+
+    with pytest.raises(
+        HeadcountError, match="cannot write .*closeup.pdf: disk full"
+    ):  # one line for the user
         run_export(build_export(page, "closeup"), target)
     assert not target.exists()
     assert not target.with_suffix(".csv").exists()

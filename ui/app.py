@@ -20,16 +20,17 @@ from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication
 
 from inspector import threads
+from inspector.cli.common import OneLineParser
 from inspector.cli.window import add_window_arguments
+from inspector.errors import HeadcountError
+from inspector.figures.files import check_output_file
 from inspector.paths import default_model
 from ui.binding_check import binding_warning
 from ui.startup import show_while_loading
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
-        prog="headcount open", description="Open a checkpoint folder in the window."
-    )
+    parser = OneLineParser(prog="headcount open", description="Open a checkpoint folder in the window.")
     return add_window_arguments(parser)
 
 
@@ -53,19 +54,25 @@ def build_window(args: argparse.Namespace, settings: QSettings | None = None):
         window.resize(*args.size)
     if args.text:
         window.open_sentence(args.text, args.expected)
-    model = Path(args.model) if args.model else default_model()
+    model = args.model if args.model else default_model()
     if model is None:
         window.show_error(
             "No sample model found; open a checkpoint folder with File \u203a Open model folder (Ctrl+O)."
         )
     else:
-        window.open_model(model, allow_pickle=args.allow_pickle)
+        window.open_model(model, allow_pickle=args.allow_pickle, checkpoint=args.checkpoint)
     return window
 
 
 def run_window(argv: Sequence[str]) -> int:
     """Entry point used by ``ui.launcher``: returns the process exit status."""
     args = build_parser().parse_args(list(argv))
+    if args.screenshot:
+        try:
+            check_output_file(args.screenshot)
+        except HeadcountError as exc:
+            print(f"headcount open: error: --screenshot: {exc}", file=sys.stderr)
+            return 2
     if args.screenshot and QApplication.instance() is None:
         os.environ["QT_QPA_PLATFORM"] = "offscreen"  # a picture needs no display
     app = application()
@@ -96,6 +103,11 @@ def run_window(argv: Sequence[str]) -> int:
 
         def finished(ok: bool) -> None:
             status["code"] = 0 if ok else 2
+            if not Path(args.screenshot).is_file():
+                print(
+                    f"headcount open: error: --screenshot: could not save {args.screenshot}", file=sys.stderr
+                )
+                status["code"] = 2
             window.close()
             app.quit()
 

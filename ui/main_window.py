@@ -25,6 +25,7 @@ from PySide6.QtWidgets import (
     QDialogButtonBox,
     QFileDialog,
     QHBoxLayout,
+    QInputDialog,
     QLabel,
     QListWidget,
     QMainWindow,
@@ -38,6 +39,7 @@ from PySide6.QtWidgets import (
 from inspector import formatting as fmt
 from inspector.checkpoint.loader import LoadedModel, load_checkpoint
 from inspector.checkpoint.masks import HeadMask
+from inspector.checkpoint.sources import run_checkpoints
 from inspector.comparison.pairing import check_comparable
 from inspector.comparison.sentence import SentenceComparison, compare_analyses
 from inspector.errors import HeadcountError
@@ -476,9 +478,33 @@ class MainWindow(QMainWindow):
             self.settings.setValue("open/folder", str(Path(folder).parent))
             self.open_model(folder)
 
-    def open_model(self, folder: str | Path, *, allow_pickle: bool = False) -> None:
-        """Load a checkpoint folder in the background; errors appear in the message bar."""
+    def choose_checkpoint(self, folder: Path, steps: list[int]) -> int | None:
+        """Ask which ``checkpoint-N`` of a training run to open (latest first); None when cancelled."""
+        items = [f"checkpoint-{n}" for n in reversed(steps)]
+        item, ok = QInputDialog.getItem(
+            self, "Open a checkpoint", f"{folder.name} holds {len(steps)} checkpoints:", items, 0, False
+        )
+        return int(item.rsplit("-", 1)[1]) if ok and item else None
+
+    def open_model(
+        self, folder: str | Path, *, allow_pickle: bool = False, checkpoint: int | None = None
+    ) -> None:
+        """Load a checkpoint (folder, training run or cached repo id) in the background.
+
+        A training-run folder without a model of its own lists its ``checkpoint-N``
+        folders to pick from. Errors appear in the message bar.
+        """
         path = Path(folder).expanduser()
+        if checkpoint is None and path.is_dir() and not (path / "config.json").is_file():
+            try:
+                steps = list(run_checkpoints(path))
+            except HeadcountError as exc:
+                self.show_error(f"Could not open {path.name}: {exc}")
+                return
+            if steps:
+                checkpoint = self.choose_checkpoint(path, steps)
+                if checkpoint is None:
+                    return
         self._loading = path
         self.message_bar.hide()
         self.busy_label.setText(f"Opening {path.name}\u2026")
@@ -486,7 +512,7 @@ class MainWindow(QMainWindow):
             self.sentence_page.clear(f"Opening {path.name}\u2026")
         self.runner.submit(
             "load",
-            lambda: load_checkpoint(path, allow_pickle=allow_pickle),
+            lambda: load_checkpoint(str(folder), allow_pickle=allow_pickle, checkpoint=checkpoint),
             self._model_ready,
             lambda text: self._model_failed(path, text),
         )

@@ -17,7 +17,9 @@ import numpy as np
 import torch
 from torch import nn
 
+from inspector.checkpoint.families import LayerParts, Projection
 from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.tokens import structural_ids, text_problem
 from inspector.errors import HeadcountError
 
 
@@ -45,18 +47,26 @@ class Batch:
 
 
 def encode(lm: LoadedModel, texts: Sequence[str], max_length: int | None = None) -> Batch:
-    """Tokenise ``texts`` into one padded batch, remembering pieces, specials and words."""
+    """Tokenise ``texts`` into one padded batch, remembering pieces, specials and words.
+
+    Special tokens are the structural ones only (classification, separator,
+    begin/end, padding, mask; see :func:`inspector.checkpoint.tokens.structural_ids`):
+    an unknown token stands for real content and counts as a word.
+    """
     if isinstance(texts, str):
         texts = [texts]
     if not texts:
         raise HeadcountError("no text to analyse")
+    for text in texts:
+        problem = text_problem(text)
+        if problem:
+            raise HeadcountError(problem)
     tok = lm.tokenizer
-    limit = max_length or int(getattr(lm.model.config, "max_position_embeddings", 512))
-    limit = min(limit, 512)
+    limit = min(max_length or lm.max_tokens, lm.max_tokens)
     enc = tok(list(texts), padding=True, truncation=True, max_length=limit, return_tensors="pt")
     ids = enc["input_ids"]
     mask = enc["attention_mask"]
-    special_ids = set(tok.all_special_ids)
+    special_ids = structural_ids(tok)
     tokens, special, word_ids, real_index = [], [], [], []
     for b in range(ids.shape[0]):
         idx = np.flatnonzero(mask[b].numpy())
@@ -65,12 +75,25 @@ def encode(lm: LoadedModel, texts: Sequence[str], max_length: int | None = None)
         special.append(np.array([t in special_ids for t in row], dtype=bool))
         try:
             wid = enc.word_ids(b)
-            word_ids.append([wid[i] for i in idx])
+            word_ids.append([None if special[-1][k] else wid[i] for k, i in enumerate(idx)])
         except (ValueError, AttributeError):
             word_ids.append([None if s else i for i, s in zip(range(len(row)), special[-1])])
         real_index.append(idx)
-    extra = {k: v for k, v in enc.items() if k not in ("input_ids", "attention_mask")}
+    extra = {k: v for k, v in enc.items() if k not in ("input_ids", "attention_mask") and k in lm.input_names}
     return Batch(ids, mask, tokens, special, word_ids, real_index, extra)
+
+
+NON_FINITE = "the model produced NaN or infinite values on this text ({what}); its weights overflow"
+
+
+def require_finite(what: str, *arrays: np.ndarray | torch.Tensor | None) -> None:
+    """Raise a one-line error if any array holds NaN or infinity (``what`` names them)."""
+    for a in arrays:
+        if a is None:
+            continue
+        finite = torch.isfinite(a).all() if isinstance(a, torch.Tensor) else np.isfinite(a).all()
+        if not bool(finite):
+            raise HeadcountError(NON_FINITE.format(what=what))
 
 
 class _CallCounter:
@@ -126,9 +149,11 @@ class AttentionRecorder:
             store.clear()
         self._out, self._filled = None, 0
 
-    def _keep(self, store: list[torch.Tensor]):
+    def _keep(self, store: list[torch.Tensor], part: LayerParts, which: Projection):
+        heads = self.lm.num_heads
+
         def hook(_m: nn.Module, _inp: object, out: torch.Tensor) -> None:
-            store.append(out)
+            store.append(part.take(which, out, heads))
 
         return hook
 
@@ -158,11 +183,12 @@ class AttentionRecorder:
         for p, part in enumerate(self.lm.parts):
             target = part.attention if self.lm.family.weights_from == "output" else part.attention.dropout
             handles.append(target.register_forward_hook(self._weights_hook(p)))
-            if self.want_values:
-                handles.append(part.value.register_forward_hook(self._keep(self.values)))
+            wanted = (("value", self.values),) if self.want_values else ()
             if self.want_qk:
-                handles.append(part.query.register_forward_hook(self._keep(self.queries)))
-                handles.append(part.key.register_forward_hook(self._keep(self.keys)))
+                wanted += (("query", self.queries), ("key", self.keys))
+            for which, store in wanted:
+                hook = self._keep(store, part, which)
+                handles.append(part.projection(which).register_forward_hook(hook))
         for h in handles:
             self._stack.callback(h.remove)
         return self
@@ -324,6 +350,7 @@ def run(
         out = lm.model(**batch.model_inputs())
         attention = rec.attention().numpy()
         logits = out.logits.numpy() if lm.has_prediction else None
+        require_finite("attention weights or logits", attention, logits)
         cap = Capture(batch=batch, attention=attention, logits=logits)
         if values:
             n_b, n_t = batch.input_ids.shape

@@ -9,10 +9,21 @@ word's pieces (keys), and the row of a word is the **mean** of its pieces' rows
 
 from __future__ import annotations
 
+import unicodedata
 from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+
+STRUCTURAL_TOKENS = (
+    "cls_token_id",
+    "sep_token_id",
+    "bos_token_id",
+    "eos_token_id",
+    "pad_token_id",
+    "mask_token_id",
+)
+"""The tokenizer attributes naming structural tokens: classification, separator, begin/end, padding, mask."""
 
 _CONTINUATION_PREFIX = "##"
 _WORD_START_MARKS = ("\u0120", "\u2581")  # byte-level BPE and sentencepiece word starts
@@ -26,6 +37,39 @@ class TokenView:
     special: np.ndarray
     groups: list[list[int]]
     """For each shown position, the piece indices it stands for."""
+
+
+def structural_ids(tokenizer: object) -> set[int]:
+    """Ids of the structural tokens of ``tokenizer``: the only ones Headcount calls special.
+
+    The unknown token is not among them: it stands for real content (an emoji, a
+    character outside the vocabulary), so it is counted, explained and shown like
+    any other word.
+    """
+    ids = {getattr(tokenizer, attr, None) for attr in STRUCTURAL_TOKENS}
+    ids.discard(None)
+    ids.discard(getattr(tokenizer, "unk_token_id", None))
+    return {int(i) for i in ids}
+
+
+def text_problem(text: object) -> str | None:
+    """Why ``text`` cannot be analysed (one line), or None when it can.
+
+    A text must be a string of valid Unicode (no undecodable bytes) with at least
+    one visible character: text made only of spaces, control or zero-width
+    characters would be analysed as an empty sentence.
+    """
+    if not isinstance(text, str):
+        return "the text must be a string"
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError:
+        return "the text is not valid UTF-8 (it holds bytes that are not characters)"
+    if not text.strip():
+        return "the text is empty"
+    if not any(unicodedata.category(c)[0] not in "CZ" for c in text):
+        return "the text has no visible characters (only spaces, control or zero-width characters)"
+    return None
 
 
 def piece_label(piece: str) -> str:

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 from pathlib import Path
 
@@ -35,6 +34,7 @@ def analysis_json(result) -> dict:
         "tokens": list(result.tokens),
         "special": [bool(s) for s in result.special],
         "prediction": None if pred is None else {"label": pred.label, "probabilities": pred.probabilities},
+        "layers": [{"layer": l, "window": w} for l, w in enumerate(result.layer_windows())],
         "heads": result.heads_table(),
     }
 
@@ -58,19 +58,21 @@ def _print_table(result, out) -> None:
 
 
 def cmd_analyze(args: argparse.Namespace) -> int:
+    from inspector.checkpoint.tokens import text_problem
+    from inspector.figures.files import check_output_file, json_text, save_npz
     from inspector.measures.analysis import analyze_sentence
 
-    if not args.text or not args.text.strip():
-        raise HeadcountError("--text is empty")
+    problem = text_problem(args.text)
+    if problem:
+        raise HeadcountError(f"--text: {problem}")
+    if args.save_attention:
+        check_output_file(args.save_attention)
     lm = load_model(args)
     result = analyze_sentence(lm, args.text, mask=load_mask(args, lm))
     if args.save_attention:
-        from inspector.figures.files import save_npz
-
         save_npz(Path(args.save_attention), attention=result.attention.astype(np.float32))
     if args.json:
-        json.dump(analysis_json(result), sys.stdout)
-        sys.stdout.write("\n")
+        sys.stdout.write(json_text(analysis_json(result)) + "\n")
     else:
         _print_table(result, sys.stdout)
     return 0

@@ -3,15 +3,45 @@
 from __future__ import annotations
 
 import argparse
+import sys
+from typing import NoReturn
 
 EXIT_USER_ERROR = 2
+
+
+class OneLineParser(argparse.ArgumentParser):
+    """An argument parser whose usage errors are one line on stderr and exit status 2 (``--help`` still helps)."""
+
+    def error(self, message: str) -> NoReturn:
+        print(f"{self.prog}: error: {message} (see --help)", file=sys.stderr)
+        raise SystemExit(EXIT_USER_ERROR)
+
+
+def _whole_number(text: str, low: int, what: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected {what}, got {text!r}") from None
+    if value < low:
+        raise argparse.ArgumentTypeError(f"expected {what}, got {value}")
+    return value
+
+
+def positive_int(text: str) -> int:
+    """argparse type: a whole number of at least 1."""
+    return _whole_number(text, 1, "a whole number of at least 1")
+
+
+def non_negative_int(text: str) -> int:
+    """argparse type: a whole number of at least 0."""
+    return _whole_number(text, 0, "a whole number of at least 0")
 
 
 def load_model(args: argparse.Namespace):
     """Open the checkpoint named by a command's ``MODEL_DIR`` argument."""
     from inspector.checkpoint.loader import load_checkpoint
 
-    return load_checkpoint(args.model, allow_pickle=args.allow_pickle)
+    return load_checkpoint(args.model, allow_pickle=args.allow_pickle, checkpoint=args.checkpoint)
 
 
 def add_model_command(sub: argparse._SubParsersAction, name: str, help_text: str) -> argparse.ArgumentParser:
@@ -19,7 +49,18 @@ def add_model_command(sub: argparse._SubParsersAction, name: str, help_text: str
     from inspector.threads import help_text as threads_help
 
     p = sub.add_parser(name, help=help_text, description=help_text, epilog=threads_help())
-    p.add_argument("model", metavar="MODEL_DIR", help="checkpoint folder (config.json + safetensors)")
+    p.add_argument(
+        "model",
+        metavar="MODEL_DIR",
+        help="checkpoint folder (config.json + safetensors), a training run's folder of checkpoint-N "
+        "folders, or a repo id in the local Hugging Face cache",
+    )
+    p.add_argument(
+        "--checkpoint",
+        type=non_negative_int,
+        metavar="N",
+        help="in a training-run folder, open checkpoint-N (default: the latest)",
+    )
     p.add_argument(
         "--allow-pickle",
         action="store_true",

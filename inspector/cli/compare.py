@@ -15,7 +15,7 @@ import argparse
 import json
 import sys
 
-from inspector.cli.corpus import _Bar, _one_line_error, add_data_options
+from inspector.cli.corpus import _Bar, add_data_options
 from inspector.comparison.settings import ComparisonSettings
 from inspector.errors import HeadcountError
 from inspector.formatting import bits, count, head_name, percent, points
@@ -186,7 +186,6 @@ def register(sub: argparse._SubParsersAction) -> None:
         "(what B fixed and broke, per-intent changes, which heads changed and which A head each B head resembles)"
     )
     p = sub.add_parser("compare", help=text, description=text)
-    p.error = _one_line_error(p)  # type: ignore[method-assign]
     d = ComparisonSettings()
     p.epilog = (
         "Files: comparison.json, fixed.csv, broken.csv, head_changes.csv, intent_changes.csv, and "

@@ -10,13 +10,18 @@ on stderr.
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 from dataclasses import replace
-from typing import NoReturn
 
 from inspector import formatting as fmt
-from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model
+from inspector.cli.common import (
+    add_mask_option,
+    add_model_command,
+    load_mask,
+    load_model,
+    non_negative_int,
+    positive_int,
+)
 from inspector.corpus.dataset import BAD_ROW_POLICIES, read_labelled
 from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
 from inspector.corpus.settings import CorpusSettings
@@ -36,12 +41,25 @@ def _orders(text: str) -> tuple[str, ...]:
     return names
 
 
+def _js_rows(text: str) -> int | str | None:
+    """argparse type of --js-rows: 'auto', 'all' / 0 (every row) or a positive count."""
+    if text.strip().lower() == "auto":
+        return "auto"
+    if text.strip().lower() == "all":
+        return None
+    try:
+        value = non_negative_int(text)
+    except argparse.ArgumentTypeError:
+        raise argparse.ArgumentTypeError(f"expected auto, all or a number of rows, got {text!r}") from None
+    return None if value == 0 else value
+
+
 def settings_from_args(args: argparse.Namespace) -> CorpusSettings:
     """The :class:`CorpusSettings` the options ask for."""
     orders = () if args.orders.strip().lower() == "none" else _orders(args.orders)
     return CorpusSettings(
         batch_size=args.batch_size,
-        js_rows=None if args.js_rows == 0 else args.js_rows,
+        js_rows=args.js_rows,
         group_threshold=args.group_threshold,
         importance=not args.no_importance,
         orders=orders,
@@ -137,10 +155,12 @@ def _print_report(summary: dict, out_dir: str, out) -> None:
 
 
 def cmd_corpus(args: argparse.Namespace) -> int:
-    from inspector.corpus.report import summary_dict, write_report
+    from inspector.corpus.report import check_report_folder, summary_dict, write_report
     from inspector.corpus.run import run_corpus
+    from inspector.figures.files import json_text
 
     settings = settings_from_args(args)
+    check_report_folder(args.out)
     lm = load_model(args)
     mask = load_mask(args, lm)
     if mask is not None:
@@ -162,8 +182,7 @@ def cmd_corpus(args: argparse.Namespace) -> int:
     write_report(report, args.out, figures=not args.no_figures)
     summary = summary_dict(report)
     if args.json:
-        json.dump(summary, sys.stdout, ensure_ascii=False)
-        sys.stdout.write("\n")
+        sys.stdout.write(json_text(summary, ensure_ascii=False) + "\n")
     else:
         _print_report(summary, args.out, sys.stdout)
     return 0
@@ -183,16 +202,11 @@ def add_data_options(p: argparse.ArgumentParser, batch_size: int) -> None:
         help="skip bad rows and list them, or fail (default: skip)",
     )
     p.add_argument(
-        "--batch-size", type=int, default=batch_size, help=f"utterances per batch (default: {batch_size})"
+        "--batch-size",
+        type=positive_int,
+        default=batch_size,
+        help=f"utterances per batch (default: {batch_size})",
     )
-
-
-def _one_line_error(parser: argparse.ArgumentParser):
-    def error(message: str) -> NoReturn:
-        print(f"headcount {parser.prog.split()[-1]}: error: {message}", file=sys.stderr)
-        raise SystemExit(2)
-
-    return error
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -203,7 +217,6 @@ def register(sub: argparse._SubParsersAction) -> None:
         "analyse a labelled evaluation set: accuracy, misfires, "
         "head importance, redundancy and a pruning simulation",
     )
-    p.error = _one_line_error(p)  # type: ignore[method-assign]
     d = CorpusSettings()
     p.epilog = (
         f"Pruning: {CAUTION} Files: summary.json, heads.csv, similar_pairs.csv, pruning.csv, "
@@ -237,14 +250,14 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--remove",
-        type=int,
+        type=non_negative_int,
         default=None,
         metavar="N",
         help="export exactly the first N heads of the mask order instead",
     )
     p.add_argument(
         "--prune-every",
-        type=int,
+        type=positive_int,
         default=d.prune_every,
         metavar="K",
         help="measure accuracy after every K removed heads (default: at steps chosen around the tolerance, "
@@ -261,17 +274,19 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--prune-subset",
-        type=int,
+        type=positive_int,
         default=None,
         metavar="N",
         help="evaluate pruning steps on N utterances drawn with the seed (default: all)",
     )
     p.add_argument(
         "--js-rows",
-        type=int,
+        type=_js_rows,
         default=d.js_rows,
-        metavar="N",
-        help=f"query rows compared per batch for head redundancy; 0 = all rows (default: {d.js_rows})",
+        metavar="auto|all|N",
+        help="query rows compared for head redundancy: auto (every row when affordable, else a sample "
+        "sized so each pair's standard error is about a fifth of the cut), all (or 0), or about N rows "
+        f"(default: {d.js_rows})",
     )
     p.add_argument(
         "--group-threshold",
@@ -282,7 +297,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument(
         "--seed",
-        type=int,
+        type=non_negative_int,
         default=d.seed,
         help=f"seed for the random order and row draws (default: {d.seed})",
     )

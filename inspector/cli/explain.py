@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, TextIO
@@ -11,7 +10,14 @@ from typing import TYPE_CHECKING, TextIO
 import numpy as np
 
 from inspector import formatting as fmt
-from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model, mask_record
+from inspector.cli.common import (
+    add_mask_option,
+    add_model_command,
+    load_mask,
+    load_model,
+    mask_record,
+    positive_int,
+)
 from inspector.errors import HeadcountError
 from inspector.explanation.choices import (
     BASELINES,
@@ -273,11 +279,15 @@ def _whole(text: str) -> int:
 
 
 def cmd_explain(args: argparse.Namespace) -> int:
+    from inspector.checkpoint.tokens import text_problem
     from inspector.explanation.explain import explain_sentence, require_classifier
     from inspector.explanation.rewording import compare_rewording
+    from inspector.figures.files import check_output_file, json_text
 
-    if not args.text or not args.text.strip():
-        raise HeadcountError("--text is empty")
+    for option, text in (("--text", args.text), ("--compare", args.compare)):
+        problem = None if text is None else text_problem(text)
+        if problem:
+            raise HeadcountError(f"{option}: {problem}")
     steps = None if args.steps.strip().lower() == "auto" else _whole(args.steps)
     if steps is not None and steps < 2:
         raise HeadcountError("--steps must be at least 2 (or 'auto')")
@@ -285,6 +295,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
         from inspector.figures.explanation import check_figure_path
 
         check_figure_path(Path(args.figure))
+        check_output_file(args.figure)
     lm = load_model(args)
     require_classifier(lm)
     options = dict(
@@ -311,8 +322,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
         doc = explanation_json(explanation)
         if comparison is not None:
             doc["compare"] = comparison_json(comparison)
-        json.dump(doc, sys.stdout, allow_nan=False)
-        sys.stdout.write("\n")
+        sys.stdout.write(json_text(doc) + "\n")
         return 0
     print_explanation(explanation, sys.stdout)
     if comparison is not None:
@@ -367,7 +377,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         help="per-head metric for --compare (default entropy)",
     )
     p.add_argument(
-        "--top", type=int, default=5, help="how many most-changed heads --compare lists (default 5)"
+        "--top", type=positive_int, default=5, help="how many most-changed heads --compare lists (default 5)"
     )
     p.add_argument("--json", action="store_true", help="print one JSON object instead of text")
     p.add_argument(

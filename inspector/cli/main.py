@@ -13,7 +13,7 @@ from collections.abc import Callable, Sequence
 
 from inspector import threads
 from inspector.cli import analyze, compare, corpus, explain, prune, report, window
-from inspector.cli.common import EXIT_USER_ERROR
+from inspector.cli.common import EXIT_USER_ERROR, OneLineParser
 from inspector.errors import HeadcountError
 
 COMMANDS: tuple[Callable[[argparse._SubParsersAction], None], ...] = (
@@ -29,7 +29,7 @@ COMMANDS: tuple[Callable[[argparse._SubParsersAction], None], ...] = (
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = OneLineParser(
         prog="headcount",
         description="Look inside transformer-encoder classifiers, head by head (CPU, offline). "
         "With no command (or 'open MODEL_DIR'), opens the window.",

@@ -11,7 +11,7 @@ from __future__ import annotations
 import argparse
 import re
 
-from inspector.cli.common import add_threads_option
+from inspector.cli.common import add_threads_option, non_negative_int
 from inspector.errors import HeadcountError
 from inspector.threads import help_text as threads_help
 
@@ -35,7 +35,13 @@ def window_size(text: str) -> tuple[int, int]:
 def add_window_arguments(p: argparse.ArgumentParser) -> argparse.ArgumentParser:
     """The options of ``headcount open`` (shared by ``--help`` and the window's parser)."""
     p.add_argument(
-        "model", nargs="?", metavar="MODEL_DIR", help="checkpoint folder (default: the bundled sample model)"
+        "model",
+        nargs="?",
+        metavar="MODEL_DIR",
+        help="checkpoint folder, training-run folder or cached repo id (default: the bundled sample model)",
+    )
+    p.add_argument(
+        "--checkpoint", type=non_negative_int, metavar="N", help="in a training-run folder, open checkpoint-N"
     )
     p.add_argument(
         "--allow-pickle", action="store_true", help="read *.bin weights with the weights-only loader"

@@ -36,7 +36,7 @@ from inspector.corpus.run import (
     label_indices,
 )
 from inspector.corpus.streaming import RunningMoments
-from inspector.measures.metrics import METRIC_NAMES, head_metrics
+from inspector.measures.metrics import METRIC_NAMES, head_metrics, window_reach
 
 __all__ = ["ComparisonReport", "CorpusCancelled", "compare_corpus"]
 
@@ -267,8 +267,9 @@ def compare_corpus(
                 att_a = rec_a.attention()
                 logits_b = lm_b.model(**batch.inputs).logits
                 att_b = rec_b.attention()
-                for att, moments in ((att_a, moments_a), (att_b, moments_b)):
-                    found = head_metrics(att, special, mask)
+                for lm, att, moments in ((lm_a, att_a, moments_a), (lm_b, att_b, moments_b)):
+                    reach = window_reach(lm.windows, att.shape[-1])  # local-window layers (ModernBERT)
+                    found = head_metrics(att, special, mask, reach=reach)
                     moments.update(torch.stack([found.get(m) for m in METRIC_NAMES], 1).numpy())
                 pick, n_real = pick_rows(batch.mask, settings.match_rows, gen)
                 sums.add(att_a, att_b, batch.mask, pick, n_real)

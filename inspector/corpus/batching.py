@@ -15,14 +15,15 @@ import numpy as np
 import torch
 
 from inspector.checkpoint.loader import LoadedModel
+from inspector.checkpoint.tokens import structural_ids
 from inspector.errors import HeadcountError
 
 _TOKENISE_CHUNK = 1024
 
 
 def length_limit(lm: LoadedModel) -> int:
-    """The longest input the model takes: its position table, at most 512."""
-    return min(int(getattr(lm.model.config, "max_position_embeddings", 512)), 512)
+    """The longest input the model takes: its position table, at most 512 (see ``LoadedModel.max_tokens``)."""
+    return lm.max_tokens
 
 
 @dataclass
@@ -36,7 +37,7 @@ class PaddedBatch:
     mask: torch.Tensor
     """[batch, tokens] bool, True for real tokens."""
     special: torch.Tensor
-    """[batch, tokens] bool, True for special tokens ([CLS], [SEP] ...)."""
+    """[batch, tokens] bool, True for structural tokens ([CLS], [SEP] ...; not [UNK])."""
 
 
 @dataclass
@@ -102,7 +103,7 @@ def encode_set(lm: LoadedModel, texts: Sequence[str]) -> EncodedSet:
     type_ids = False
     for start in range(0, len(texts), _TOKENISE_CHUNK):
         enc = tok(list(texts[start : start + _TOKENISE_CHUNK]), truncation=True, max_length=limit)
-        type_ids = type_ids or "token_type_ids" in enc
+        type_ids = type_ids or ("token_type_ids" in enc and "token_type_ids" in lm.input_names)
         for row in enc["input_ids"]:
             chunks.append(np.asarray(row, dtype=np.int32))
             lengths.append(len(row))
@@ -113,6 +114,6 @@ def encode_set(lm: LoadedModel, texts: Sequence[str]) -> EncodedSet:
         ids=np.concatenate(chunks) if chunks else np.zeros(0, np.int32),
         offsets=offsets,
         pad_id=int(pad),
-        special_ids=torch.tensor(sorted(set(tok.all_special_ids)), dtype=torch.long),
+        special_ids=torch.tensor(sorted(structural_ids(tok)), dtype=torch.long),
         type_ids=type_ids,
     )

@@ -21,6 +21,7 @@ from pathlib import Path
 from typing import Literal
 
 from inspector import formatting
+from inspector.checkpoint.tokens import text_problem
 from inspector.errors import HeadcountError
 
 BadRowPolicy = Literal["skip", "fail"]
@@ -148,6 +149,12 @@ def _jsonl_records(
         except json.JSONDecodeError as exc:
             yield number, number, None, None, f"not valid JSON ({exc.msg})"
             continue
+        except RecursionError:
+            yield number, number, None, None, "not valid JSON (nested too deeply)"
+            continue
+        except ValueError as exc:  # e.g. an integer longer than Python converts
+            yield number, number, None, None, f"not valid JSON ({str(exc).splitlines()[0]})"
+            continue
         if not isinstance(obj, dict):
             yield number, number, None, None, "not a JSON object"
             continue
@@ -203,6 +210,8 @@ def read_labelled(
     path = Path(path).expanduser()
     if on_bad_row not in BAD_ROW_POLICIES:
         raise HeadcountError(f"unknown bad-row policy '{on_bad_row}' (use skip or fail)")
+    if path.is_dir():
+        raise HeadcountError(f"{path}: is a folder, not a data file")
     if not path.is_file():
         raise HeadcountError(f"{path}: no such data file")
     data_format = detect_format(path, fmt)
@@ -225,6 +234,8 @@ def read_labelled(
         label_name = _label_text(label)
         if reason is None and (not isinstance(text, str) or not text.strip()):
             reason = f"missing text ('{text_field}')"
+        elif reason is None and text_problem(text):
+            reason = f"unusable text ('{text_field}'): {text_problem(text)}"
         elif reason is None and label_name is None:
             reason = f"missing label ('{label_field}')"
         elif reason is None and known is not None and label_name not in known:
@@ -243,6 +254,9 @@ def read_labelled(
         tail = f"; and {more} more" if more > 0 else ""
         raise HeadcountError(f"{path.name}: {formatting.count(len(out.bad_rows), 'bad row')}: {shown}{tail}")
     if not out.texts:
-        why = f" ({formatting.count(len(out.bad_rows), 'bad row')}, first: line {out.bad_rows[0].row}: {out.bad_rows[0].reason})"
-        raise HeadcountError(f"{path.name}: no usable utterance" + (why if out.bad_rows else ""))
+        why = ""
+        if out.bad_rows:
+            first = out.bad_rows[0]
+            why = f" ({formatting.count(len(out.bad_rows), 'bad row')}, first: line {first.row}: {first.reason})"
+        raise HeadcountError(f"{path.name}: no usable utterance" + why)
     return out

@@ -16,7 +16,9 @@ Orders (which head goes next):
     greedy on the redundancy matrix: repeatedly take the two remaining heads
     with the lowest mean Jensen-Shannon divergence and remove the less important
     one (the later one if no importance is known), so one head of each
-    near-duplicate pair survives longest.
+    near-duplicate pair survives longest. In a corpus run only pairs that are
+    near-duplicates (divergence plus twice its standard error within the cut)
+    are taken; the heads left after them follow in ascending importance.
 """
 
 from __future__ import annotations
@@ -62,7 +64,14 @@ def random_order(num_layers: int, num_heads: int, seed: int) -> list[Head]:
     return [(int(f // num_heads), int(f % num_heads)) for f in flat]
 
 
-def duplicates_order(js: np.ndarray, num_heads: int, importance: np.ndarray | None = None) -> list[Head]:
+def duplicates_order(
+    js: np.ndarray,
+    num_heads: int,
+    importance: np.ndarray | None = None,
+    *,
+    bound: np.ndarray | None = None,
+    threshold: float | None = None,
+) -> list[Head]:
     """Greedy removal of one head of the currently most similar pair.
 
     Parameters
@@ -72,6 +81,12 @@ def duplicates_order(js: np.ndarray, num_heads: int, importance: np.ndarray | No
     num_heads : int
     importance : ndarray of shape (layers, heads), optional
         Breaks the choice within a pair: the less important head goes.
+    bound : ndarray of shape (k, k), optional
+        Upper bound of each pair's divergence (``js + 2 * standard error``); default ``js``.
+    threshold : float, optional
+        Only pairs whose bound is within this cut are taken; the remaining heads
+        then follow in ascending importance (flat order without importance).
+        None takes every pair (the plain greedy order).
 
     Returns
     -------
@@ -87,15 +102,20 @@ def duplicates_order(js: np.ndarray, num_heads: int, importance: np.ndarray | No
     alive = list(range(k))
     order: list[int] = []
     dist = np.array(js, dtype=float)
+    if threshold is not None:
+        limit = np.asarray(js if bound is None else bound, dtype=float)
+        dist[limit > threshold] = np.inf
     np.fill_diagonal(dist, np.inf)
     while len(alive) > 1:
         sub = dist[np.ix_(alive, alive)]
+        if not np.isfinite(sub).any():
+            break
         a, b = np.unravel_index(int(np.argmin(sub)), sub.shape)
         i, j = sorted((alive[a], alive[b]))
         victim = i if score[i] < score[j] else j
         order.append(victim)
         alive.remove(victim)
-    order.extend(alive)
+    order.extend(sorted(alive, key=lambda f: (score[f], f)))
     return [(f // num_heads, f % num_heads) for f in order]
 
 
@@ -106,9 +126,15 @@ def make_order(
     *,
     importance: np.ndarray | None = None,
     js: np.ndarray | None = None,
+    js_bound: np.ndarray | None = None,
+    threshold: float | None = None,
     seed: int = 0,
 ) -> list[Head]:
-    """The removal order called ``name`` (one of :data:`PRUNING_ORDERS`)."""
+    """The removal order called ``name`` (one of :data:`PRUNING_ORDERS`).
+
+    ``js_bound`` and ``threshold`` restrict the ``duplicates`` order to near-duplicate
+    pairs (see :func:`duplicates_order`).
+    """
     if name == "importance":
         if importance is None:
             raise HeadcountError("the 'importance' pruning order needs head importance")
@@ -118,7 +144,7 @@ def make_order(
     if name == "duplicates":
         if js is None:
             raise HeadcountError("the 'duplicates' pruning order needs the head redundancy matrix")
-        return duplicates_order(js, num_heads, importance)
+        return duplicates_order(js, num_heads, importance, bound=js_bound, threshold=threshold)
     raise HeadcountError(f"unknown pruning order '{name}' (use: {', '.join(PRUNING_ORDERS)})")
 
 

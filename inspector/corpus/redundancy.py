@@ -11,6 +11,16 @@ Near-duplicate groups come from complete-linkage agglomerative clustering of
 the mean divergences cut at a threshold (default :data:`DEFAULT_GROUP_THRESHOLD`
 bits): inside a group *every* pair of heads is within the threshold, so chains
 of pairwise-close heads that drift apart are not merged into one group.
+
+Which rows are compared (the rule README states): every real query row when
+the whole set's comparisons fit the scan budget (:func:`comparison_budget`); otherwise a simple
+random sample of rows whose size comes from the data: a pilot of
+:data:`PILOT_UTTERANCES` utterances gives each pair's spread, and the sample is
+made large enough that the largest standard error is about
+:data:`TARGET_SE_FRACTION` of the cut. Every pair then carries its standard
+error, and a pair counts toward a group (or the ``duplicates`` pruning order)
+only when its divergence plus twice its standard error is within the cut. With
+every row compared the standard error is 0 and the rule is the plain cut.
 """
 
 from __future__ import annotations
@@ -38,8 +48,23 @@ pairs whose rows are, on average, almost interchangeable. Divergences shrink on
 very short utterances (fewer keys to tell rows apart), so compare sets of
 similar length; the threshold is a setting (CLI ``--group-threshold``).
 """
-DEFAULT_JS_ROWS = 16
-"""Real query rows compared per batch in a corpus scan (see :mod:`inspector.corpus.run`)."""
+DEFAULT_JS_ROWS = "auto"
+"""Rows compared in a corpus scan: ``auto`` (the rule above), None (every row) or a sample size."""
+COMPARISON_FLOOR = 20_000_000
+"""Comparisons (rows x head pairs x keys) any scan may spend on redundancy: about a fifth of a second of
+one core (bench/bench_corpus.py measured 100-250 million per second on a 2-core machine)."""
+FORWARD_SHARE = 0.1
+"""Beyond the floor, redundancy may cost about this share of the set's forward pass, which keeps the
+scan near its throughput target (README, speed table)."""
+FLOPS_PER_COMPARISON = 400
+"""Forward-pass floating-point operations that take as long as one comparison (bench/bench_corpus.py: the
+bare forward of the sample model and of all-MiniLM-L6-v2 ran at 35-47 GFLOP/s, the comparisons at
+about 110 million per second, on one thread of the same loaded 2-core machine)."""
+PILOT_UTTERANCES = 32
+"""Utterances whose rows give each pair's spread, to size a sample."""
+TARGET_SE_FRACTION = 0.2
+"""A sample is sized so the largest standard error is about this fraction of the cut (0.01 bits at 0.05)."""
+MIN_SAMPLE_ROWS = 256
 _PAIR_CHUNK_ELEMENTS = 262_144
 
 
@@ -85,6 +110,28 @@ def pairwise_js_sum(rows: torch.Tensor, weights: torch.Tensor | None = None) -> 
     tensor of shape (heads, heads), float64
         ``S[i, j] = sum_r w_r JS(rows[r, i], rows[r, j])``, symmetric, zero diagonal.
 
+    References
+    ----------
+    Lin (1991), "Divergence measures based on the Shannon entropy".
+    """
+    return pairwise_js_moments(rows, weights)[0]
+
+
+def pairwise_js_moments(
+    rows: torch.Tensor, weights: torch.Tensor | None = None
+) -> tuple[torch.Tensor, torch.Tensor]:
+    """Weighted sums of the pairwise Jensen-Shannon divergence (bits) and of its square, over rows.
+
+    Parameters
+    ----------
+    rows : tensor of shape (rows, heads, n)
+    weights : tensor of shape (rows,), optional
+
+    Returns
+    -------
+    sums, squares : tensors of shape (heads, heads), float64
+        ``sum_r w_r JS_r[i, j]`` and ``sum_r w_r JS_r[i, j]^2``; symmetric, zero diagonal.
+
     Notes
     -----
     ``JS = H((p + q) / 2) - (H(p) + H(q)) / 2``: the heads' own entropies are
@@ -101,8 +148,9 @@ def pairwise_js_sum(rows: torch.Tensor, weights: torch.Tensor | None = None) -> 
 
     n_rows, heads, n = rows.shape
     out = torch.zeros(heads, heads, dtype=torch.float64)
+    out_sq = torch.zeros(heads, heads, dtype=torch.float64)
     if n_rows == 0 or heads < 2:
-        return out
+        return out, out_sq
     own = shannon_entropy(rows)  # [rows, heads]
     block = max(1, min(heads, math.isqrt(_PAIR_CHUNK_ELEMENTS // max(1, n))))
     step = max(1, _PAIR_CHUNK_ELEMENTS // (block * block * n))
@@ -117,34 +165,41 @@ def pairwise_js_sum(rows: torch.Tensor, weights: torch.Tensor | None = None) -> 
                 js = (mix - (own_r[:, a : a + block, None] + own_r[:, None, b : b + block]) * 0.5).clamp_(
                     min=0.0
                 )
+                sq = js * js
                 if weights is not None:
-                    js.mul_(weights[r : r + step, None, None].to(js.dtype))
+                    w = weights[r : r + step, None, None].to(js.dtype)
+                    js.mul_(w)
+                    sq.mul_(w)
                 out[a : a + block, b : b + block] += js.sum(0, dtype=torch.float64)
-    out = torch.triu(out / LN2, diagonal=1)
-    return out + out.T
+                out_sq[a : a + block, b : b + block] += sq.sum(0, dtype=torch.float64)
+    out = torch.triu(out / LN2, diagonal=1)  # nats -> bits
+    out_sq = torch.triu(out_sq / (LN2 * LN2), diagonal=1)
+    return out + out.T, out_sq + out_sq.T
 
 
 class DivergenceSums:
-    """Streaming weighted sums of pairwise Jensen-Shannon divergence over attention rows.
+    """Streaming sums of pairwise Jensen-Shannon divergence (and its square) over attention rows.
 
     Rows arrive batch by batch (each batch's rows share one key length); they are
     buffered, zero-padded to a common key length (zeros add nothing to any
     entropy, so the divergences are unchanged) and compared ``flush_rows`` at a
-    time, which keeps the per-batch overhead small. Memory: the ``heads x heads``
-    sums plus at most ``flush_rows`` buffered rows.
+    time, which keeps the per-batch overhead small. Memory: two ``heads x heads``
+    matrices plus at most ``flush_rows`` buffered rows.
     """
 
     def __init__(self, heads: int, flush_rows: int = 128) -> None:
         import torch
 
         self.sums = torch.zeros(heads, heads, dtype=torch.float64)
+        self.squares = torch.zeros(heads, heads, dtype=torch.float64)
         self.weight_total = 0.0
         self.rows_compared = 0
+        self.unit_weights = True
         self.flush_rows = flush_rows
         self._pending: list[tuple[torch.Tensor, float]] = []
         self._pending_rows = 0
 
-    def add(self, rows: torch.Tensor, weight: float) -> None:
+    def add(self, rows: torch.Tensor, weight: float = 1.0) -> None:
         """Add rows [r, heads, n], each standing for ``weight`` rows of the corpus."""
         if rows.shape[0] == 0:
             return
@@ -152,6 +207,7 @@ class DivergenceSums:
         self._pending_rows += rows.shape[0]
         self.weight_total += weight * rows.shape[0]
         self.rows_compared += rows.shape[0]
+        self.unit_weights = self.unit_weights and weight == 1.0
         if self._pending_rows >= self.flush_rows:
             self.flush()
 
@@ -163,8 +219,12 @@ class DivergenceSums:
             return
         width = max(r.shape[-1] for r, _ in self._pending)
         rows = torch.cat([F.pad(r, (0, width - r.shape[-1])) for r, _ in self._pending])
-        weights = torch.cat([torch.full((r.shape[0],), w) for r, w in self._pending])
-        self.sums += pairwise_js_sum(rows, weights)
+        weights = None
+        if not all(w == 1.0 for _, w in self._pending):
+            weights = torch.cat([torch.full((r.shape[0],), w) for r, w in self._pending])
+        sums, squares = pairwise_js_moments(rows, weights)
+        self.sums += sums
+        self.squares += squares
         self._pending.clear()
         self._pending_rows = 0
 
@@ -172,6 +232,82 @@ class DivergenceSums:
         """Weighted mean divergence per pair (bits), [heads, heads]."""
         self.flush()
         return (self.sums / max(self.weight_total, 1e-300)).numpy()
+
+    def variance(self) -> np.ndarray:
+        """Unbiased sample variance of the per-row divergence per pair (unit weights), [heads, heads]."""
+        self.flush()
+        m = self.rows_compared
+        if not self.unit_weights:
+            raise ValueError("the variance of a weighted sum is not defined here")
+        if m < 2:
+            return np.zeros(tuple(self.sums.shape))
+        var = (self.squares - self.sums * self.sums / m) / (m - 1)
+        return var.clamp(min=0.0).numpy()
+
+    def standard_error(self, population_rows: int) -> np.ndarray:
+        """Standard error of each pair's mean when the rows are a simple random sample of ``population_rows``.
+
+        Returns
+        -------
+        ndarray of shape (heads, heads)
+            ``sqrt((1 - m / N) s^2 / m)`` with m rows compared, N = ``population_rows`` and
+            s^2 the sample variance; 0 when every row was compared.
+
+        References
+        ----------
+        Cochran (1977), "Sampling Techniques", 3rd ed., ch. 2: the variance of the
+        sample mean under simple random sampling, with the finite population correction.
+        """
+        m = self.rows_compared
+        if m == 0:
+            return np.zeros(tuple(self.sums.shape))
+        fpc = max(0.0, 1.0 - m / max(population_rows, m))
+        return np.sqrt(fpc * self.variance() / m)
+
+
+def sample_size(largest_variance: float, target_se: float, population_rows: int) -> int:
+    """Rows to draw so a mean with this per-row variance has about ``target_se`` standard error.
+
+    Parameters
+    ----------
+    largest_variance : float
+        The largest per-row variance of any pair (from a pilot).
+    target_se : float
+        The standard error wanted, in bits.
+    population_rows : int
+        Rows in the whole set.
+
+    Returns
+    -------
+    int
+        ``n = n0 / (1 + n0 / N)`` with ``n0 = s^2 / se^2``, at least
+        :data:`MIN_SAMPLE_ROWS` (and at most N).
+
+    References
+    ----------
+    Cochran (1977), "Sampling Techniques", 3rd ed., sec. 4.4 (sample size for a
+    given variance of the mean, with the finite population correction).
+    """
+    n0 = largest_variance / max(target_se, 1e-12) ** 2
+    n = math.ceil(n0 / (1.0 + n0 / max(population_rows, 1)))
+    return int(min(population_rows, max(n, MIN_SAMPLE_ROWS)))
+
+
+def comparison_budget(encoder_parameters: int, tokens: int) -> float:
+    """Comparisons a scan may spend on redundancy: the floor, or a share of the forward pass if larger.
+
+    ``max(COMPARISON_FLOOR, FORWARD_SHARE * 2 * P * T / FLOPS_PER_COMPARISON)`` with P the encoder's
+    parameters (embedding table excluded) and T the set's tokens; ``2 P T`` counts the forward pass's
+    multiply-adds (Kaplan et al. 2020, "Scaling Laws for Neural Language Models", sec. 2.1).
+    """
+    forward = 2.0 * encoder_parameters * tokens
+    return max(float(COMPARISON_FLOOR), FORWARD_SHARE * forward / FLOPS_PER_COMPARISON)
+
+
+def comparison_cost(lengths: np.ndarray, heads_total: int) -> float:
+    """Comparisons needed to compare every real row: ``sum_u n_u^2`` rows x keys, times head pairs."""
+    lengths = np.asarray(lengths, dtype=np.float64)
+    return float((lengths**2).sum()) * heads_total * (heads_total - 1) / 2
 
 
 @dataclass(frozen=True)
@@ -183,6 +319,8 @@ class SimilarPair:
     layer_b: int
     head_b: int
     js_divergence: float
+    standard_error: float = 0.0
+    """Of ``js_divergence`` when rows were sampled (0 when every row was compared)."""
 
 
 @dataclass
@@ -198,10 +336,28 @@ class Redundancy:
     rows_compared: int
     """Rows actually compared (fewer than ``rows_total`` when rows were sampled)."""
     threshold: float = DEFAULT_GROUP_THRESHOLD
+    standard_error: np.ndarray | None = None
+    """[layers*heads, layers*heads] standard error of each mean (bits); None or 0 when every row was compared."""
     groups: list[list[tuple[int, int]]] = field(init=False)
 
     def __post_init__(self) -> None:
-        self.groups = near_duplicate_groups(self.js, self.num_heads, self.threshold)
+        if self.standard_error is None:
+            self.standard_error = np.zeros_like(self.js)
+        self.groups = near_duplicate_groups(self.upper_bound, self.num_heads, self.threshold)
+
+    @property
+    def sampled(self) -> bool:
+        return self.rows_compared < self.rows_total
+
+    @property
+    def upper_bound(self) -> np.ndarray:
+        """``js + 2 * standard_error``: a pair is a near-duplicate only if this is within the cut."""
+        return self.js + 2.0 * self.standard_error
+
+    @property
+    def largest_standard_error(self) -> float:
+        k = len(self.js)
+        return float(self.standard_error[np.triu_indices(k, 1)].max()) if k > 1 else 0.0
 
     @property
     def similarity(self) -> np.ndarray:
@@ -212,10 +368,15 @@ class Redundancy:
         """Every unordered pair of heads, most similar (lowest divergence) first."""
         i, j = np.triu_indices(len(self.js), k=1)
         order = np.lexsort((j, i, self.js[i, j]))
-        h = self.num_heads
+        h, se = self.num_heads, self.standard_error
         return [
             SimilarPair(
-                int(i[k] // h), int(i[k] % h), int(j[k] // h), int(j[k] % h), float(self.js[i[k], j[k]])
+                int(i[k] // h),
+                int(i[k] % h),
+                int(j[k] // h),
+                int(j[k] % h),
+                float(self.js[i[k], j[k]]),
+                float(se[i[k], j[k]]),
             )
             for k in order
         ]
@@ -227,7 +388,9 @@ def near_duplicate_groups(js: np.ndarray, num_heads: int, threshold: float) -> l
     Parameters
     ----------
     js : ndarray of shape (k, k)
-        Symmetric mean divergences, zero diagonal (k = layers * heads).
+        Symmetric mean divergences, zero diagonal (k = layers * heads); with
+        sampled rows, pass ``js + 2 * standard_error`` so a pair only counts when
+        it is within the cut by more than twice its standard error.
     num_heads : int
         Heads per layer, to turn flat indices into (layer, head).
     threshold : float

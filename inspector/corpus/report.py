@@ -7,7 +7,8 @@ Files (all written atomically):
                       redundancy groups, pruning choice and cautions
 ``heads.csv``         one row per head: layer, head, ``<metric>_mean``, ``<metric>_std``
                       for every name in METRIC_NAMES, importance, importance_raw
-``similar_pairs.csv`` layer_a, head_a, layer_b, head_b, js_divergence (bits), most similar first
+``similar_pairs.csv`` layer_a, head_a, layer_b, head_b, js_divergence (bits), js_standard_error (bits;
+                      0 when every row was compared), most similar first
 ``pruning.csv``       order, step, heads_removed, fraction_removed, accuracy, removed_layer, removed_head
 ``prune_mask.json``   ``{"layer": [head, ...]}`` (layer keys as strings, counting from 0)
 figures               confusion_matrix, head_importance, head_similarity, pruning_curve (.png and .svg)
@@ -21,7 +22,7 @@ from inspector.checkpoint.masks import mask_json
 from inspector.corpus.dataset import LabelledSet
 from inspector.corpus.pruning import CAUTION
 from inspector.corpus.run import CorpusReport
-from inspector.figures.files import save_csv, save_json
+from inspector.figures.files import check_output_folder, replace_folder, save_csv, save_json
 from inspector.measures.metrics import METRIC_NAMES
 
 SUMMARY = "summary.json"
@@ -48,7 +49,7 @@ HEADS_HEADER: tuple[str, ...] = (
     "importance",
     "importance_raw",
 )
-SIMILAR_PAIRS_HEADER = ("layer_a", "head_a", "layer_b", "head_b", "js_divergence")
+SIMILAR_PAIRS_HEADER = ("layer_a", "head_a", "layer_b", "head_b", "js_divergence", "js_standard_error")
 PRUNING_HEADER = (
     "order",
     "step",
@@ -132,9 +133,12 @@ def summary_dict(report: CorpusReport) -> dict:
         "log_base": 2,
         "unit": "bits",
         "group_threshold": red.threshold,
-        "grouping": "complete linkage: every pair inside a group is within the threshold",
+        "grouping": "complete linkage: every pair inside a group is within the threshold, counting a pair's "
+        "divergence plus twice its standard error",
         "rows_total": red.rows_total,
         "rows_compared": red.rows_compared,
+        "rows": "every real query row" if not red.sampled else "a simple random sample of real query rows",
+        "largest_standard_error": red.largest_standard_error,
         "groups": [[_head(l, h) for l, h in g] for g in red.groups],
         "most_similar": [
             {
@@ -142,6 +146,7 @@ def summary_dict(report: CorpusReport) -> dict:
                 "layer_b": p.layer_b,
                 "head_b": p.head_b,
                 "js_divergence": p.js_divergence,
+                "standard_error": p.standard_error,
             }
             for p in red.pairs()[:_TOP]
         ],
@@ -198,11 +203,38 @@ def pruning_rows(report: CorpusReport) -> list[list[object]]:
     return rows
 
 
+def report_file(name: str) -> bool:
+    """True for a file name a corpus report writes (so an earlier report's folder may be replaced)."""
+    stems = set(FIGURES.values())
+    figure = "." in name and name.rsplit(".", 1)[0] in stems and name.rsplit(".", 1)[1] in ("png", "svg")
+    return name in (SUMMARY, HEADS, SIMILAR_PAIRS, PRUNING, PRUNE_MASK) or figure
+
+
+def check_report_folder(folder: str | Path) -> Path:
+    """Refuse, before a run, a report folder that cannot be written or holds files of something else."""
+    return check_output_folder(folder, report_file)
+
+
 def write_report(report: CorpusReport, folder: str | Path, *, figures: bool = True) -> dict[str, list[Path]]:
-    """Write every output file of a corpus run into ``folder``; returns name -> written paths."""
+    """Write every output file of a corpus run into ``folder``; returns name -> written paths.
+
+    The files are written into a fresh folder beside ``folder`` and swapped in
+    whole, so ``folder`` never mixes files of two runs (an earlier report there
+    is replaced; a folder holding anything else is refused).
+    """
+    folder = check_report_folder(folder)
+    written: dict[str, list[Path]] = {}
+
+    def fill(tmp: Path) -> None:
+        written.update(_write_files(report, tmp, figures))
+
+    replace_folder(folder, fill)
+    return {key: [folder / p.name for p in paths] for key, paths in written.items()}
+
+
+def _write_files(report: CorpusReport, folder: Path, figures: bool) -> dict[str, list[Path]]:
     from inspector.figures import corpus as plots
 
-    folder = Path(folder)
     written: dict[str, list[Path]] = {
         "summary": [save_json(folder / SUMMARY, summary_dict(report))],
         "heads": [save_csv(folder / HEADS, HEADS_HEADER, heads_rows(report))],
@@ -211,7 +243,7 @@ def write_report(report: CorpusReport, folder: str | Path, *, figures: bool = Tr
                 folder / SIMILAR_PAIRS,
                 SIMILAR_PAIRS_HEADER,
                 (
-                    [p.layer_a, p.head_a, p.layer_b, p.head_b, p.js_divergence]
+                    [p.layer_a, p.head_a, p.layer_b, p.head_b, p.js_divergence, p.standard_error]
                     for p in report.redundancy.pairs()
                 ),
             )

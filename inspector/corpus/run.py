@@ -17,15 +17,17 @@ into a confusion matrix, so memory does not grow with the number of utterances
 beyond one predicted label and two probabilities per utterance (12 bytes) and
 the misfire list.
 
-Row sampling for redundancy: comparing every pair of heads on every real query
-row costs ``pairs x rows x tokens``; to keep the scan close to a bare forward
-pass, each batch compares at most ``js_rows`` real query rows drawn at random
-(seeded) and weights them by ``real rows / drawn rows``, which keeps the corpus
-mean unbiased (Horvitz-Thompson). ``js_rows=None`` compares every row. The
-default of 16 rows per batch was checked on all-MiniLM-L6-v2 over the ferry
-evaluation set: it finds the same closest pair, the same near-duplicate group
-and the same five most similar pairs as comparing every row, with those pairs'
-values within 0.004 bits.
+Rows compared for redundancy: comparing every pair of heads on every real query
+row costs ``pairs x rows x keys``. With ``js_rows="auto"`` (the default) every
+row is compared when that fits the scan budget (comparison_budget); otherwise a pilot of a few
+utterances measures how much each pair's divergence varies from row to row, and
+each real row is kept with one common probability (seeded) so that the expected
+sample gives every pair a standard error of about a fifth of the near-duplicate
+cut. The kept rows are a simple random sample of the set's rows, so each pair's
+mean is unbiased and carries its standard error; near-duplicate groups and the
+``duplicates`` pruning order use a pair only when its mean plus twice its
+standard error is within the cut (see :mod:`inspector.corpus.redundancy`).
+``js_rows=None`` compares every row; a number draws about that many rows.
 """
 
 from __future__ import annotations
@@ -41,7 +43,7 @@ import numpy as np
 import torch
 
 from inspector import formatting as fmt
-from inspector.checkpoint.capture import AttentionRecorder, HeadGates
+from inspector.checkpoint.capture import AttentionRecorder, HeadGates, require_finite
 from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask, masked
 from inspector.corpus.batching import EncodedSet, PaddedBatch, encode_set, length_limit
@@ -58,11 +60,21 @@ from inspector.corpus.pruning import (
     measure_adaptively,
     step_counts,
 )
-from inspector.corpus.redundancy import DEFAULT_GROUP_THRESHOLD, DEFAULT_JS_ROWS, DivergenceSums, Redundancy
+from inspector.corpus.redundancy import (
+    DEFAULT_GROUP_THRESHOLD,
+    DEFAULT_JS_ROWS,
+    PILOT_UTTERANCES,
+    TARGET_SE_FRACTION,
+    DivergenceSums,
+    Redundancy,
+    comparison_budget,
+    comparison_cost,
+    sample_size,
+)
 from inspector.corpus.settings import CorpusSettings
 from inspector.corpus.streaming import RunningMoments
 from inspector.errors import HeadcountError
-from inspector.measures.metrics import METRIC_NAMES, head_metrics
+from inspector.measures.metrics import METRIC_NAMES, head_metrics, window_reach
 
 ProgressCallback = Callable[[int, int], None]
 StopCheck = Callable[[], bool]
@@ -309,18 +321,83 @@ def _check_classifier(lm: LoadedModel) -> None:
         )
 
 
-def _js_rows(
-    att: torch.Tensor, mask: torch.Tensor, js_rows: int | None, gen: torch.Generator
-) -> tuple[torch.Tensor, int]:
-    """Draw real query rows: ([rows, layers*heads, tokens] with padded keys zeroed, real row count)."""
+_PILOT_ROWS = 256
+"""At most this many pilot rows are compared to estimate the pairs' spread."""
+SAMPLE_WORTH = 0.75
+"""Rows are sampled only when the pilot and the sample together compare fewer than this share of all rows."""
+
+
+def _real_rows(att: torch.Tensor, mask: torch.Tensor) -> torch.Tensor:
+    """Every real query row: [rows, layers*heads, tokens] with padded keys zeroed."""
     b_idx, t_idx = mask.nonzero(as_tuple=True)
-    n_real = int(b_idx.numel())
-    if js_rows is not None and n_real > js_rows:
-        pick = torch.randperm(n_real, generator=gen)[:js_rows]
-        b_idx, t_idx = b_idx[pick], t_idx[pick]
     flat = att.flatten(1, 2)  # [B, L*H, T, T]
-    rows = flat[b_idx, :, t_idx, :] * mask[b_idx][:, None, :].to(att.dtype)
-    return rows, n_real
+    return flat[b_idx, :, t_idx, :] * mask[b_idx][:, None, :].to(att.dtype)
+
+
+@dataclass(frozen=True)
+class RowPlan:
+    """Which real query rows the redundancy measure compares."""
+
+    keep: float | None
+    """Probability with which each real row is kept (None: every row)."""
+    pilot_rows: int = 0
+    """Rows of the pilot that sized the sample (0: no pilot)."""
+
+
+def plan_rows(
+    lm: LoadedModel,
+    encoded: EncodedSet,
+    rec: AttentionRecorder,
+    js_rows: int | str | None,
+    *,
+    threshold: float,
+    budget: float | None,
+    seed: int,
+) -> RowPlan:
+    """Every row when affordable (or asked for), else a sample sized from a pilot.
+
+    Parameters
+    ----------
+    js_rows : 'auto', None or int
+        ``auto``: every row if :func:`inspector.corpus.redundancy.comparison_cost` is within
+        ``budget`` (None: :func:`inspector.corpus.redundancy.comparison_budget`), else about
+        :func:`inspector.corpus.redundancy.sample_size` rows (a standard error of
+        ``TARGET_SE_FRACTION * threshold`` for the pair that varies most in the pilot);
+        None: every row; an int: about that many rows.
+
+    References
+    ----------
+    Cochran (1977), "Sampling Techniques", sec. 4.4 (sizing a simple random sample from a
+    pilot estimate of the variance).
+    """
+    total = int(encoded.lengths.sum())
+    if js_rows is None or total == 0:
+        return RowPlan(None)
+    if js_rows != "auto":
+        wanted = int(js_rows)
+        return RowPlan(None if wanted >= total else wanted / total)
+    if budget is None:
+        embeddings = lm.model.get_input_embeddings().weight.numel()
+        encoder = sum(p.numel() for p in lm.model.parameters()) - embeddings
+        budget = comparison_budget(encoder, total)
+    if comparison_cost(encoded.lengths, lm.num_layers * lm.num_heads) <= budget:
+        return RowPlan(None)
+    rng = np.random.default_rng(seed)
+    pilot = np.sort(rng.choice(len(encoded), size=min(PILOT_UTTERANCES, len(encoded)), replace=False))
+    batch = encoded.batch(pilot)
+    with torch.inference_mode():
+        lm.model(**batch.inputs)
+        rows = _real_rows(rec.attention(), batch.mask)
+    if rows.shape[0] > _PILOT_ROWS:
+        rows = rows[torch.from_numpy(np.sort(rng.choice(rows.shape[0], size=_PILOT_ROWS, replace=False)))]
+    sums = DivergenceSums(rows.shape[1])
+    sums.add(rows)
+    var = sums.variance()
+    largest = float(var[np.triu_indices(len(var), 1)].max()) if len(var) > 1 else 0.0
+    n = sample_size(largest, TARGET_SE_FRACTION * threshold, total)
+    if n + rows.shape[0] > SAMPLE_WORTH * total:  # sampling would save little: compare every row
+        return RowPlan(None, pilot_rows=int(rows.shape[0]))
+    return RowPlan(n / total, pilot_rows=int(rows.shape[0]))
 
 
 def scan(
@@ -329,10 +406,11 @@ def scan(
     *,
     encoded: EncodedSet | None = None,
     batch_size: int = 32,
-    js_rows: int | None = DEFAULT_JS_ROWS,
+    js_rows: int | str | None = DEFAULT_JS_ROWS,
     group_threshold: float = DEFAULT_GROUP_THRESHOLD,
     seed: int = 0,
     redundancy: bool = True,
+    js_budget: float | None = None,
     progress: Progress | None = None,
 ) -> ScanResult:
     """One streaming pass: predictions, per-head metric moments, pairwise head divergence.
@@ -347,14 +425,18 @@ def scan(
         ``encode_set(lm, data.texts)`` if already computed.
     batch_size : int
         Utterances per batch (batches are cut after sorting by length).
-    js_rows : int or None
-        Real query rows compared per batch for redundancy (None = every row).
+    js_rows : 'auto', int or None
+        Real query rows compared for redundancy: the rule of :func:`plan_rows`
+        (``auto``), about this many rows (int), or every row (None).
     group_threshold : float
         Near-duplicate cut in bits of mean Jensen-Shannon divergence.
     seed : int
         Seed of the row draw.
     redundancy : bool
         Compute the pairwise divergences (False leaves them at 0; for benchmarks).
+    js_budget : float, optional
+        Comparisons (rows x head pairs x keys) that may be spent before rows are sampled
+        (default: :func:`inspector.corpus.redundancy.comparison_budget` for this model and set).
     progress : Progress, optional
 
     Returns
@@ -387,17 +469,28 @@ def scan(
     rows_total = 0
     gen = torch.Generator().manual_seed(seed)
     with AttentionRecorder(lm, copy_out=True) as rec:  # no stacking copy per batch
+        plan = RowPlan(None)
+        if redundancy:
+            plan = plan_rows(
+                lm, encoded, rec, js_rows, threshold=group_threshold, budget=js_budget, seed=seed
+            )
         for index in progress.batches(encoded.sorted_batches(batch_size)):
             batch = encoded.batch(index)
             with torch.inference_mode():
                 logits = lm.model(**batch.inputs).logits
                 att = rec.attention()
-                found = head_metrics(att, batch.special[:, None, None, :], batch.mask[:, None, None, :])
+                require_finite("attention weights or logits", logits, att)
+                reach = window_reach(lm.windows, att.shape[-1])
+                found = head_metrics(
+                    att, batch.special[:, None, None, :], batch.mask[:, None, None, :], reach=reach
+                )
                 moments.update(torch.stack([found.get(n) for n in METRIC_NAMES], 1).numpy())
                 if redundancy:
-                    rows, n_real = _js_rows(att, batch.mask, js_rows, gen)
-                    divergence.add(rows, n_real / max(rows.shape[0], 1))
-                    rows_total += n_real
+                    rows = _real_rows(att, batch.mask)
+                    rows_total += rows.shape[0]
+                    if plan.keep is not None:
+                        rows = rows[torch.rand(rows.shape[0], generator=gen) < plan.keep]
+                    divergence.add(rows)
                 probs = torch.softmax(logits.double(), -1)
             top = probs.argmax(-1).numpy()
             predicted[index] = top
@@ -423,10 +516,19 @@ def scan(
         count=moments.count,
     )
     js_mean = divergence.mean()
+    sampled = divergence.rows_compared < rows_total
     return ScanResult(
         evaluation=Evaluation(list(lm.labels), confusion, predicted, conf, misfires),
         heads=stats,
-        redundancy=Redundancy(js_mean, layers, heads, rows_total, divergence.rows_compared, group_threshold),
+        redundancy=Redundancy(
+            js_mean,
+            layers,
+            heads,
+            rows_total,
+            divergence.rows_compared,
+            group_threshold,
+            standard_error=divergence.standard_error(rows_total) if sampled else None,
+        ),
     )
 
 
@@ -465,6 +567,7 @@ def importance_pass(
     acc = ImportanceAccumulator(lm.num_layers, lm.num_heads)
     for index in progress.batches(encoded.sorted_batches(batch_size)):
         grads, losses = gate_gradients(lm, encoded.batch(index), torch.from_numpy(gold[index]))
+        require_finite("gate gradients or losses", grads, losses)
         acc.add(grads, losses)
     return acc.result()
 
@@ -759,6 +862,7 @@ def _run_corpus(
         batch_size=settings.batch_size,
         js_rows=settings.js_rows,
         group_threshold=settings.group_threshold,
+        js_budget=settings.js_budget,
         seed=settings.seed,
         progress=progress,
     )
@@ -782,10 +886,12 @@ def _run_corpus(
             + " cut there."
         )
     red = found.redundancy
-    if red.rows_compared < red.rows_total:
+    if red.sampled:
         report.notes.append(
-            f"Head redundancy compares {red.rows_compared} of {red.rows_total} real query rows "
-            f"(at most {settings.js_rows} drawn per batch, seed {settings.seed}, reweighted to an unbiased mean)."
+            f"Head redundancy compares {red.rows_compared} of {red.rows_total} real query rows drawn at random "
+            f"(seed {settings.seed}); the largest standard error of a pair is "
+            f"{fmt.bits(red.largest_standard_error)}, and a pair counts as a near-duplicate only if its "
+            f"divergence plus twice its standard error is within {fmt.bits(red.threshold)}."
         )
     phase_done("scan")
     if settings.importance:
@@ -799,7 +905,16 @@ def _run_corpus(
         imp = report.importance.normalized if report.importance is not None else None
         orders = {
             name: masked_first(
-                make_order(name, lm.num_layers, lm.num_heads, importance=imp, js=red.js, seed=settings.seed),
+                make_order(
+                    name,
+                    lm.num_layers,
+                    lm.num_heads,
+                    importance=imp,
+                    js=red.js,
+                    js_bound=red.upper_bound,
+                    threshold=red.threshold,
+                    seed=settings.seed,
+                ),
                 mask.heads,
             )
             for name in settings.orders

@@ -19,8 +19,12 @@ class CorpusSettings:
     """Every knob of a corpus run (defaults are what the CLI uses)."""
 
     batch_size: int = 32
-    js_rows: int | None = DEFAULT_JS_ROWS
-    """Real query rows compared per batch for redundancy (None = all)."""
+    js_rows: int | str | None = DEFAULT_JS_ROWS
+    """Real query rows compared for redundancy: ``auto`` (every row when affordable, else a
+    sample sized from a pilot), None (every row) or about this many rows."""
+    js_budget: float | None = None
+    """Comparisons (rows x head pairs x keys) a scan may spend before ``auto`` samples rows
+    (None: :func:`inspector.corpus.redundancy.comparison_budget` for the model and set)."""
     group_threshold: float = DEFAULT_GROUP_THRESHOLD
     importance: bool = True
     orders: tuple[str, ...] = ("importance", "random")
@@ -45,8 +49,11 @@ class CorpusSettings:
         """Raise HeadcountError for settings that cannot work with ``lm``."""
         if self.batch_size < 1:
             raise HeadcountError("the batch size must be at least 1")
-        if self.js_rows is not None and self.js_rows < 1:
-            raise HeadcountError("the number of rows compared per batch must be at least 1")
+        if self.js_rows is not None and self.js_rows != "auto":
+            if isinstance(self.js_rows, bool) or not isinstance(self.js_rows, int) or self.js_rows < 1:
+                raise HeadcountError("the number of rows compared must be 'auto', 'all' or at least 1")
+        if self.js_budget is not None and not self.js_budget >= 0:
+            raise HeadcountError("the comparison budget must not be negative")
         if not 0 <= self.group_threshold <= 1:
             raise HeadcountError("the near-duplicate threshold is in bits and must lie in [0, 1]")
         for name in self.orders:

@@ -21,6 +21,7 @@ import numpy as np
 
 from inspector import formatting as fmt
 from inspector.checkpoint import capture
+from inspector.checkpoint.capture import require_finite
 from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask, masked
 from inspector.checkpoint.tokens import make_view
@@ -370,6 +371,12 @@ def explain_sentence(
         watch.lap("integrated_gradients")
         occ = occlude_words(lm, batch, groups, occlusion)
         watch.lap("occlusion")
+    require_finite(
+        "gradients, attributions or occluded probabilities",
+        grads.gradients,
+        integral.attributions,
+        occ.occluded,
+    )
 
     evidence = []
     for k, (name, idx) in enumerate(zip(names, indices)):

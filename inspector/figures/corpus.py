@@ -266,7 +266,8 @@ def similarity_caption(redundancy: Redundancy, model: str = "") -> str:
     return (
         f"{_model(model)}Similarity = 1 \u2212 mean Jensen-Shannon divergence between two heads' attention rows "
         f"(bits). Within each layer block heads run {fmt.head_tick(0)}..{fmt.head_tick(heads - 1)}; framed: "
-        f"near-duplicate groups (complete linkage at {fmt.bits(redundancy.threshold)}); "
+        f"near-duplicate groups (complete linkage at {fmt.bits(redundancy.threshold)}, each pair's divergence "
+        "plus 2 standard errors within it); "
         f"{redundancy.rows_compared} of {fmt.count(redundancy.rows_total, 'query row')} compared. Colour: "
         f"{palette.SEQUENTIAL_TEXT}, from the least similar pair to identical."
     )

@@ -70,10 +70,17 @@ class SentenceAnalysis:
     prediction: Prediction | None
     mask: HeadMask = field(default_factory=HeadMask)
     """The heads switched off while the sentence ran (empty: the full model)."""
+    windows: list[int | None] | None = None
+    """Per layer, the local attention window (None: global); None when every layer is global."""
     head_metrics: metrics.HeadMetrics = field(init=False)
 
     def __post_init__(self) -> None:
-        self.head_metrics = metrics.head_metrics(self.attention, self.special)
+        reach = metrics.window_reach(self.windows or [], self.attention.shape[-1]) if self.windows else None
+        self.head_metrics = metrics.head_metrics(self.attention, self.special, reach=reach)
+
+    def layer_windows(self) -> list[int | None]:
+        """The window of every layer (None for global attention)."""
+        return list(self.windows) if self.windows else [None] * self.num_layers
 
     @property
     def num_layers(self) -> int:
@@ -177,4 +184,5 @@ def analyze_sentence(lm: LoadedModel, text: str, *, mask: HeadMask | None = None
         out_bias=cap.out_bias,
         prediction=prediction,
         mask=mask or HeadMask(),
+        windows=list(lm.windows) if any(w is not None for w in lm.windows) else None,
     )

@@ -15,6 +15,7 @@ with masks shaped ``[batch, 1, 1, n]``), so nothing is copied to numpy per batch
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 from types import ModuleType
 from typing import Any
@@ -182,11 +183,39 @@ def _entropy_over_queries(attention: Any, ent: Any, mask: Any | None, *, normali
     return _mean_over_queries(_per_log_keys(ent, kmask) if normalize else ent, qmask)
 
 
-def _per_log_keys(ent: Any, kmask: Any) -> Any:
-    """Row entropies divided by ``ln m`` (m = number of real keys); 0 where m <= 1."""
+def _per_log_keys(ent: Any, kmask: Any, reach: Any | None = None) -> Any:
+    """Row entropies divided by ``ln m`` (m = number of real keys the query can see); 0 where m <= 1."""
     xp = _xp(ent)
-    log_m = xp.log(kmask.sum(-1).clip(min=1.0))
+    seen = kmask if reach is None else kmask * reach
+    log_m = xp.log(seen.sum(-1).clip(min=1.0))
     return _safe_divide(xp, ent, log_m)
+
+
+def window_reach(windows: Sequence[int | None], n: int) -> np.ndarray | None:
+    """Which keys each layer's queries can see, for layers with a local attention window.
+
+    Parameters
+    ----------
+    windows : sequence of int or None, one per layer
+        The largest distance ``|i - j|`` a layer's queries attend over (None: global).
+    n : int
+        Tokens.
+
+    Returns
+    -------
+    bool ndarray of shape (layers, 1, n, n), or None when every layer is global
+        ``reach[l, 0, i, j] = |i - j| <= w_l``; it broadcasts over heads (and a
+        leading batch axis) in :func:`head_metrics`.
+
+    References
+    ----------
+    Beltagy, Peters & Cohan (2020), "Longformer", sliding-window attention; the
+    window as transformers' bidirectional sliding-window mask applies it.
+    """
+    if all(w is None for w in windows):
+        return None
+    dist = np.abs(np.arange(n)[:, None] - np.arange(n)[None, :])
+    return np.stack([np.ones((n, n), bool) if w is None else dist <= w for w in windows])[:, None]
 
 
 def mean_distance(attention: np.ndarray, mask: np.ndarray | None = None) -> np.ndarray:
@@ -468,7 +497,12 @@ def _contract_pairs(a: Any, weights: Any) -> Any:
 
 
 def head_metrics(
-    attention: np.ndarray, special: np.ndarray, mask: np.ndarray | None = None, *, dtype: Any = None
+    attention: np.ndarray,
+    special: np.ndarray,
+    mask: np.ndarray | None = None,
+    *,
+    dtype: Any = None,
+    reach: np.ndarray | None = None,
 ) -> HeadMetrics:
     """Compute every per-head metric at once.
 
@@ -486,6 +520,10 @@ def head_metrics(
     dtype : numpy float dtype, optional
         Compute an array input in this dtype instead (``np.float64`` for a float64
         computation of float32 attention; it copies the whole array).
+    reach : bool array of shape (..., n, n), optional
+        Keys each query can see by construction (local attention windows, see
+        :func:`window_reach`); normalised entropy then divides each row by the log
+        of the number of real keys inside the window. Default: every key.
 
     Returns
     -------
@@ -523,10 +561,12 @@ def head_metrics(
     xp = _xp(a)
     qmask, kmask = _masks(a, mask)
     every_key = mask is None or (bool(mask.all()) if _is_torch(mask) else bool(np.all(mask)))
-    if every_key and np.ndim(special) == 1 and a.ndim >= 2 and not getattr(a, "requires_grad", False):
+    plain = reach is None and np.ndim(special) == 1 and a.ndim >= 2
+    if every_key and plain and not getattr(a, "requires_grad", False):
         return _unpadded_metrics(a, special)
     ent, top = _row_passes(a, None if every_key else kmask)
-    per_query = xp.stack([ent, _per_log_keys(ent, kmask), top])
+    seen = None if reach is None else _as_float(xp, reach, a)
+    per_query = xp.stack([ent, _per_log_keys(ent, kmask, seen), top])
     entropy, normalized, conf = _mean_over_queries(per_query, qmask)
     weights, divisors = _pair_weights(a, qmask, kmask, special)
     linear = _contract_pairs(a, weights) / divisors

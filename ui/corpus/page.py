@@ -57,6 +57,7 @@ from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
 from inspector.corpus.report import write_report
 from inspector.corpus.run import PHASES, CorpusCancelled, CorpusReport, PhaseProgress
 from inspector.corpus.settings import CorpusSettings
+from inspector.errors import HeadcountError
 from inspector.formatting import count
 from ui.corpus.export import EXPORT_KINDS, build_export
 from ui.corpus.pruning_plot import PruningPlot
@@ -585,8 +586,10 @@ class CorpusPage(QWidget):
     # -- model and request -------------------------------------------------------------------------
     def set_model(self, lm: LoadedModel) -> None:
         """A new model: stop a running analysis, forget the old results, offer the sample set if it fits."""
+        was_running = self.is_running()
         self.stop()
         self.runner.cancel(CHANNEL)
+        self.phase_label.setText("Stopped: another model was opened" if was_running else "")
         self.lm = lm
         suggested = default_data_file(lm)
         if not self.path_edit.text().strip() or self.path_edit.text() == self._default_file:
@@ -1272,6 +1275,10 @@ class CorpusPage(QWidget):
             remember_folder(self.settings, Path(path))
             self.save_mask(Path(path))
 
-    def save_mask(self, path: Path) -> Path:
-        """Write the chosen heads to ``path`` atomically as ``{"layer": [head, ...]}``."""
-        return self.masks.save(self.chosen_mask(), path)
+    def save_mask(self, path: Path) -> Path | None:
+        """Write the chosen heads to ``path`` atomically as ``{"layer": [head, ...]}``; None if it failed."""
+        try:
+            return self.masks.save(self.chosen_mask(), path)
+        except HeadcountError as exc:
+            self.error.emit(f"Could not save the prune mask: {exc}")
+            return None

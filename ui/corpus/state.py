@@ -210,6 +210,11 @@ def groups_html(report: CorpusReport) -> str:
         f"<td align=right>&nbsp;{fmt.bits(p.js_divergence)}</td></tr>"
         for p in red.pairs()[:5]
     )
+    if red.sampled:
+        groups += (
+            f"<span>{red.rows_compared} of {red.rows_total} rows sampled: a pair counts only if its divergence "
+            f"+ 2 standard errors (up to {red.largest_standard_error:.3f}) is within the cut</span><br>"
+        )
     return (
         f"{groups}<br><span>every pair in a group within {fmt.bits(red.threshold)} of mean JS divergence</span>"
         f"<br><br><b>Closest pairs</b> (mean JS divergence)<table cellspacing=1>{pairs}</table>"

@@ -237,6 +237,8 @@ class HeadGrid(HoverView):
         self.metric_values: np.ndarray | None = None
         """[layers, heads] metric values as printed under the cells."""
         self._meter: np.ndarray | None = None
+        self.windows: list[int | None] = []
+        """Per layer, the local attention window (None: global); windowed layers are labelled ``L1 ±2``."""
         self._per_head = True
         self._selected = (0, 0)
         self._off: frozenset[tuple[int, int]] = frozenset()
@@ -265,10 +267,12 @@ class HeadGrid(HoverView):
         *,
         per_head: bool,
         summary: Callable[[int, int], str] | None = None,
+        windows: list[int | None] | None = None,
     ) -> None:
         if attention is not self.attention or per_head != self._per_head:
             self._heads_version += 1
         self.attention = attention
+        self.windows = list(windows or [])
         self.metric_values = metric
         lo, hi = metric_range
         self._meter = (metric - lo) / max(hi - lo, 1e-12)
@@ -338,7 +342,8 @@ class HeadGrid(HoverView):
     def _margins(self, layers: int) -> tuple[int, int]:
         """(left, top): room for the layer names on the left and the head names on top."""
         fm = self.fontMetrics()
-        return fm.horizontalAdvance(fmt.layer_name(layers - 1)) + 10, fm.height() + 4
+        names = [self.layer_label(layer) for layer in range(layers)] or [fmt.layer_name(0)]
+        return max(fm.horizontalAdvance(name) for name in names) + 10, fm.height() + 4
 
     def width_for_height(self, height: int, layers: int, heads: int) -> int:
         """The width at which ``layers`` x ``heads`` cells are as large as ``height`` allows."""
@@ -358,6 +363,12 @@ class HeadGrid(HoverView):
         left += max((avail_w - used_w) // 2, 0)
         top += max((avail_h - used_h) // 2, 0)
         return GridGeometry(left, top, cell, gap, lane, L, H)
+
+    def layer_label(self, layer: int) -> str:
+        """``L3``, or ``L3 ±64`` for a layer that attends within a local window of 64 tokens each side."""
+        window = self.windows[layer] if layer < len(self.windows) else None
+        name = fmt.layer_name(layer)
+        return name if window is None else f"{name} ±{window}"
 
     # -- drawing -----------------------------------------------------------------------------------
     def _mosaic(self, geo: GridGeometry) -> QImage:
@@ -525,7 +536,7 @@ class HeadGrid(HoverView):
             p.drawText(
                 QRect(0, r.center().y() - fm.height() // 2, geo.left - 6, fm.height()),
                 Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter | Qt.TextFlag.TextDontClip,
-                fmt.layer_name(layer),
+                self.layer_label(layer),
             )
         p.setFont(self.font())
 

@@ -748,7 +748,12 @@ class SentencePageWidget(QWidget):
         if key != self._grid_input:
             lo, hi = metric_range(st.options.metric, metric)
             self.grid.set_data(
-                heads, metric, (lo, hi), per_head=st.options.scale == "own", summary=self._summary_a
+                heads,
+                metric,
+                (lo, hi),
+                per_head=st.options.scale == "own",
+                summary=self._summary_a,
+                windows=st.analysis.layer_windows(),
             )
             self._grid_input = key
             self.colour_key.set_text("Colour:", "0", "each head's max" if st.options.scale == "own" else "1")

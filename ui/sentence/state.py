@@ -520,10 +520,14 @@ class SentencePage:
 
     def head_summary(self, layer: int, head: int) -> str:
         """Every metric of one head, one per line (hover text)."""
-        m = self._require().head_metrics
+        analysis = self._require()
+        m = analysis.head_metrics
         lines = [fmt.head_name(layer, head)]
         if (layer, head) in set(self.mask.heads):
             lines[0] += " — switched off: its output is removed (its attention is still computed)"
+        window = analysis.layer_windows()[layer]
+        if window is not None:
+            lines.append(f"local attention: keys within ±{window} tokens (entropy / ln n counts those keys)")
         lines += [f"{METRIC_LABELS[name]}: {fmt.weight(m.get(name)[layer, head])}" for name in METRIC_NAMES]
         return "\n".join(lines)
 

@@ -47,8 +47,9 @@ class _Job(QRunnable):
             result, error = self._fn(), ""
         except HeadcountError as exc:
             result, error = None, str(exc)
-        except Exception as exc:  # shown in the message bar; the window must survive it
-            result, error = None, f"{type(exc).__name__}: {exc}"
+        except Exception as exc:  # a bug: shown in the message bar; the window must survive it
+            first = (str(exc).strip().splitlines() or [""])[0]
+            result, error = None, f"unexpected error, please report it ({type(exc).__name__}: {first})"
         self._runner.relay.finished.emit(self._channel, self._seq, result, error)
 
 
