@@ -20,7 +20,7 @@ from pathlib import Path
 
 import pytest
 
-from inspector.paths import SAMPLE_EVAL, SAMPLE_MODEL, sample_model_available
+from inspector.paths import SAMPLE_EVAL, SAMPLE_MODEL, SAMPLE_RETRAINED, sample_model_available
 from tests.text_rules import plain, score_cell_violations, violations
 
 pytestmark = pytest.mark.skipif(not sample_model_available(), reason="the bundled sample model is missing")
@@ -391,14 +391,18 @@ def _figure_text(fig) -> list[str]:
 
 
 def test_exported_figures_follow_the_rules(sample, slice_csv, misfire):
-    """Titles, captions, legends, ticks and printed numbers of the corpus, explanation and sentence figures.
+    """Titles, captions, legends, ticks and printed numbers of the corpus, explanation, sentence and comparison
+    figures.
 
     Reference: the display rules of inspector.formatting; matplotlib's Text artists hold every string drawn.
     """
+    from inspector.checkpoint.loader import load_checkpoint
+    from inspector.comparison.sentence import compare_sentence
     from inspector.corpus.dataset import read_labelled
     from inspector.corpus.run import run_corpus
     from inspector.corpus.settings import CorpusSettings
     from inspector.explanation.rewording import compare_rewording
+    from inspector.figures import comparison as comparison_figures
     from inspector.figures import corpus as corpus_figures
     from inspector.figures import explanation as explanation_figures
     from inspector.figures import sentence as sentence_figures
@@ -408,6 +412,7 @@ def test_exported_figures_follow_the_rules(sample, slice_csv, misfire):
     report = run_corpus(sample, data, CorpusSettings(batch_size=16, prune_every=6))
     cmp = compare_rewording(sample, TEXT, EDITED, expected=misfire, steps=16)
     a = analyze_sentence(sample, TEXT)
+    pair = compare_sentence(sample, load_checkpoint(SAMPLE_RETRAINED), TEXT).matching
     cap = sentence_figures.Caption(a.model_name, a.text, "Head mosaic", "L2H3", "Entropy (nats)", "0 to 1")
     figures = {
         "confusion": corpus_figures.confusion_figure(report.evaluation),
@@ -419,6 +424,8 @@ def test_exported_figures_follow_the_rules(sample, slice_csv, misfire):
             a.attention, a.head_metrics.get("entropy"), cap, per_head=True
         ),
         "relevance": sentence_figures.relevance_figure(a.rollout[0], a.tokens, cap),
+        "change map": comparison_figures.change_map_figure(pair, "A", "B", "the sentence"),
+        "matching map": comparison_figures.matching_figure(pair, "A", "B", "the sentence"),
     }
     texts = {name: _figure_text(fig) for name, fig in figures.items()}
     problems = violations((name, t) for name, found in texts.items() for t in found)
@@ -427,3 +434,4 @@ def test_exported_figures_follow_the_rules(sample, slice_csv, misfire):
     assert any(t.endswith("%") for t in texts["pruning"])  # accuracy ticks are percentages, not fractions
     assert any("tolerance (1.0 point below the start)" in t for t in texts["pruning"])
     assert {"L0", "H0"} <= set(texts["importance"]) and {"L0", "H0"} <= set(texts["mosaic"])
+    assert {"L0", "H0"} <= set(texts["change map"]) and "L0H0" in texts["matching map"]

@@ -153,6 +153,46 @@ def corpus_figures() -> dict:
     }
 
 
+def comparison_figures(sample) -> dict:
+    """The head change and matching maps: the sample model against its retrained copy on one sentence, and a
+    12 x 12 pair (with unchanged heads) over a set; also B with fewer heads per layer than A."""
+    from inspector.checkpoint.loader import load_checkpoint
+    from inspector.comparison.matching import HeadMatching
+    from inspector.comparison.sentence import compare_sentence
+    from inspector.figures import comparison as figs
+    from inspector.paths import SAMPLE_RETRAINED
+
+    retrained = load_checkpoint(SAMPLE_RETRAINED)
+    pair = compare_sentence(sample, retrained, TEXT)
+    rng = np.random.default_rng(5)
+    identical = np.zeros((12, 12), bool)
+    identical[:2] = True
+    big = HeadMatching(rng.random((144, 144)) * 0.5, 12, 12, 12, 12, identical, 60000, 8000)
+    narrow = HeadMatching(rng.random((24, 36)) * 0.3, 6, 6, 6, 4, np.zeros((6, 4), bool), 900, 900)
+    where = f"the sentence \u201c{TEXT}\u201d"
+    made = {}
+    for name, matching, a, b, over in (
+        ("sample", pair.matching, sample.name, retrained.name, where),
+        (
+            "12x12",
+            big,
+            "ferry_intents",
+            "ferry_intents_pruned_and_retrained",
+            "512 utterances of ferry_eval.csv",
+        ),
+        (
+            "6x4 against 6x6",
+            narrow,
+            "ferry_intents",
+            "ferry_intents_small",
+            "40 utterances of ferry_eval.csv",
+        ),
+    ):
+        made[f"change map {name}"] = figs.change_map_figure(matching, a, b, over)
+        made[f"matching map {name}"] = figs.matching_figure(matching, a, b, over)
+    return made
+
+
 def test_sentence_figures_print_cleanly(sample, misfire):
     """Close-up, mosaic, arcs, relevance band and the sheet (A4 and Letter), sample and 12x12x128 sizes.
 
@@ -198,6 +238,19 @@ def test_corpus_figures_print_cleanly():
     problems = []
     for name, fig in corpus_figures().items():
         problems += check(name, fig)
+    assert problems == [], "\n".join(problems[:30])
+
+
+def test_comparison_figures_print_cleanly(sample):
+    """Head change map and head matching map: the sample pair on a sentence, 12 x 12 heads, B narrower than A.
+
+    Reference: as above; the maps hold divergences (never negative), so only the sequential map may appear
+    (DEVELOPERS.md, visual language).
+    """
+    problems = []
+    for name, fig in comparison_figures(sample).items():
+        problems += check(name, fig)
+        assert maps_used(fig) == {"cividis"}, name
     assert problems == [], "\n".join(problems[:30])
 
 

@@ -22,6 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 import torch
 
+from inspector import formatting as fmt
 from inspector.corpus.redundancy import LN2
 from inspector.measures.metrics import shannon_entropy
 
@@ -164,6 +165,18 @@ class HeadMatching:
     def best_js(self) -> np.ndarray:
         """[layers_b, heads_b] the divergence to the best-matching A head."""
         return self.js.min(axis=1).reshape(self.layers_b, self.heads_b)
+
+    def change_texts(self, decimals: int = 2) -> list[list[str]]:
+        """[layers_b][heads_b] what a cell of the head change map prints: the same-position change in
+        bits (:func:`inspector.formatting.weight`), ``=`` for an unchanged head, ``''`` where A has none."""
+        same, unchanged = self.same_position, self.unchanged
+        return [
+            [
+                "" if np.isnan(v) else ("=" if unchanged[l, h] else fmt.weight(v, decimals))
+                for h, v in enumerate(row)
+            ]
+            for l, row in enumerate(same)
+        ]
 
     def moved(self, margin: float = 0.05) -> list[tuple[int, int, int, int, float, float]]:
         """B heads whose best match is another position, by more than ``margin`` bits.

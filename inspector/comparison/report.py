@@ -29,6 +29,7 @@ from inspector.comparison.run import ChangedUtterance, ComparisonReport
 from inspector.comparison.sentence import SentenceComparison
 from inspector.corpus.report import ATTENTION_CAUTION, data_dict
 from inspector.figures.files import save_csv, save_json
+from inspector.formatting import count
 from inspector.measures.analysis import Prediction
 from inspector.measures.metrics import METRIC_NAMES
 
@@ -261,7 +262,7 @@ def write_comparison(
 
 
 def _where(report: ComparisonReport) -> str:
-    return f"{len(report.data)} utterances of {Path(report.data.path).name}"
+    return f"{count(len(report.data), 'utterance')} of {Path(report.data.path).name}"
 
 
 def write_figures(

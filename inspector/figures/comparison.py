@@ -1,105 +1,155 @@
 """Exported figures of a comparison between two checkpoints (matplotlib, Agg, no pyplot state).
 
-Divergences are non-negative, so both maps use the one sequential map (``cividis``); numbers
-are printed in the cells so no value is read from colour alone. Written as PNG and SVG by
-:func:`inspector.figures.corpus.save_figure`.
+Two heat maps, for a labelled set (``headcount compare``, the Comparison tab) and for one sentence
+(the sentence page with a second model):
+
+* the **head change map**: B's heads, layers down and heads across, each against A's head at the
+  same position;
+* the **head matching map**: every head of B against every head of A, each B head's closest A head
+  framed.
+
+Both hold mean Jensen-Shannon divergences in bits, which are never negative, so both use the one
+sequential map (:mod:`inspector.palette`), print the number in each cell wherever it fits, frame in
+ink (the accent marks the selection only), keep every text at 7 pt or more and fit A4 and US Letter.
+They are laid out in inches like the corpus figures (:mod:`inspector.figures.grids`) and written as
+PNG and SVG by :func:`inspector.figures.corpus.save_figure`.
 """
 
 from __future__ import annotations
 
 import numpy as np
 from matplotlib.figure import Figure
-from matplotlib.patches import Rectangle
 
+from inspector import palette
 from inspector.comparison.matching import HeadMatching
-from inspector.figures.corpus import _caption, _figure
-from inspector.figures.sentence import CMAP_NAME, _cmap
-from inspector.formatting import count, head_name, layer_name
+from inspector.figures.grids import (
+    cell_texts,
+    colour_bar,
+    frame_cells,
+    head_grid,
+    head_ticks,
+    layer_lines,
+    top_of,
+)
+from inspector.figures.paper import (
+    FITS_BOTH,
+    MIN_FONT,
+    axes_at,
+    caption_height,
+    draw_caption,
+    draw_heading,
+    fitted_figure,
+    heading_height,
+    shorten,
+    text_width,
+)
+from inspector.formatting import bits, count, head_name, layer_name, weight
 
-_ANNOTATE_UP_TO = 16 * 16
-_MATCH_LABELS_UP_TO = 48
+SCALE_LABEL = "mean JS divergence (bits)"
+BAR_ROOM = 1.15
+"""Inches right of a map for its colour bar, the bar's ticks and its label."""
+LEFT = 0.7
+"""Inches left of the head change map for the layer names and the axis title."""
+MIN_BODY = 1.6
+"""Inches a map's colour bar needs at least, so its label fits beside it."""
 
 
-def _text_colour(value: float, top: float) -> str:
-    return "black" if top > 0 and value > 0.6 * top else "white"
+def change_caption(matching: HeadMatching, model_a: str, model_b: str, where: str) -> str:
+    """What the head change map shows, in words."""
+    same = matching.same_position
+    missing = int(np.isnan(same).sum())
+    blank = f"; blank: {count(missing, 'position')} {model_a} does not have" if missing else ""
+    return (
+        f"Each cell: the head of B ({model_b}) against the head at the same layer and head of A ({model_a}), "
+        f"mean Jensen-Shannon divergence between their attention rows over "
+        f"{count(matching.rows_compared, 'query row')} of {where} (bits; 0 = identical, 1 = disjoint). "
+        f"'=' marks {count(int(matching.unchanged.sum()), 'head')} with exactly the same weights in both{blank}. "
+        f"Colour: {palette.SEQUENTIAL_TEXT}, from 0 to the largest change ({bits(top_of(same))})."
+    )
 
 
 def change_map_figure(matching: HeadMatching, model_a: str, model_b: str, where: str) -> Figure:
     """B's heads (layers down, heads across) shaded by their same-position change against A, in bits.
 
-    Unchanged heads print ``=``; positions A does not have are left blank.
+    Each cell prints its divergence with two decimals, ``=`` for a head whose weights did not change;
+    positions A does not have are left blank.
     """
     same = matching.same_position
     layers, heads = same.shape
-    fig = _figure(max(5.2, 0.62 * heads + 2.6), max(3.4, 0.48 * layers + 2.0))
-    ax = fig.add_axes((0.1, 0.22, 0.74, 0.66))
-    top = float(np.nanmax(same)) if np.isfinite(same).any() else 1.0
-    im = ax.imshow(np.ma.masked_invalid(same), cmap=_cmap(), vmin=0.0, vmax=max(top, 1e-9), aspect="auto")
-    ax.set_xticks(range(heads), [f"H{h}" for h in range(heads)], fontsize=8)
-    ax.set_yticks(range(layers), [layer_name(l) for l in range(layers)], fontsize=8)
-    ax.set_xlabel(f"head of {model_b}")
-    ax.set_ylabel("layer")
-    if layers * heads <= _ANNOTATE_UP_TO:
-        unchanged = matching.unchanged
-        for l in range(layers):
-            for h in range(heads):
-                v = same[l, h]
-                if np.isnan(v):
-                    continue
-                text = "=" if unchanged[l, h] else f"{v:.2f}"
-                ax.text(h, l, text, ha="center", va="center", fontsize=7, color=_text_colour(v, top))
-    fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03, label="mean JS divergence (bits)")
-    ax.set_title(f"How much each head changed: {model_b} against {model_a}", fontsize=10)
-    n_same = int(matching.unchanged.sum())
-    _caption(
-        fig,
-        f"Each cell: the head's attention in {model_b} against the head at the same position in {model_a}, "
-        f"mean Jensen-Shannon divergence over {count(matching.rows_compared, 'query row')} of {where} "
-        f"(0 = identical, 1 = disjoint). '=' marks {count(n_same, 'head')} with exactly the same weights. "
-        f"Map: {CMAP_NAME}.",
-    )
+    cell = float(np.clip(6.2 / max(heads, layers * 0.8), 0.22, 0.5))
+    grid_w, grid_h = cell * heads, cell * layers
+    heading = f"How much each head changed: B ({model_b}) against A ({model_a})"
+    caption = change_caption(matching, model_a, model_b, where)
+    width = max(LEFT + grid_w + BAR_ROOM, 5.6)
+    top = heading_height(heading, width)
+    body = max(grid_h, MIN_BODY)
+    height = top + body + 0.5 + caption_height(caption, width)
+    fig = fitted_figure(width, height)
+    draw_heading(fig, heading)
+    ax = axes_at(fig, LEFT, top, grid_w, grid_h)
+    texts = [t for row in matching.change_texts() for t in row]
+    im = head_grid(ax, same, cell, texts=texts)
+    ax.set_xlabel("head of B", fontsize=MIN_FONT + 1)
+    colour_bar(fig, im, LEFT + grid_w + 0.15, top, body, SCALE_LABEL)
+    draw_caption(fig, caption, top + body + 0.5)
     return fig
 
 
-def matching_figure(matching: HeadMatching, model_a: str, model_b: str, where: str) -> Figure:
-    """Every head of B against every head of A (mean JS, bits); each B head's best match is framed."""
-    js = matching.js
-    kb, ka = js.shape
-    side_w = min(12.0, max(5.5, 0.16 * ka + 3.2))
-    side_h = min(11.0, max(4.5, 0.16 * kb + 2.6))
-    fig = _figure(side_w, side_h)
-    ax = fig.add_axes((0.14, 0.16, 0.7, 0.74))
-    im = ax.imshow(js, cmap=CMAP_NAME, vmin=0.0, vmax=max(float(js.max()), 1e-9), aspect="auto")
-    if kb <= _MATCH_LABELS_UP_TO and ka <= _MATCH_LABELS_UP_TO:
-        names_a = [head_name(i // matching.heads_a, i % matching.heads_a) for i in range(ka)]
-        names_b = [head_name(j // matching.heads_b, j % matching.heads_b) for j in range(kb)]
-        ax.set_xticks(range(ka), names_a, rotation=90, fontsize=6.5)
-        ax.set_yticks(range(kb), names_b, fontsize=6.5)
-    else:
-        centres_a = [l * matching.heads_a + (matching.heads_a - 1) / 2 for l in range(matching.layers_a)]
-        centres_b = [l * matching.heads_b + (matching.heads_b - 1) / 2 for l in range(matching.layers_b)]
-        ax.set_xticks(centres_a, [layer_name(l) for l in range(matching.layers_a)], fontsize=8)
-        ax.set_yticks(centres_b, [layer_name(l) for l in range(matching.layers_b)], fontsize=8)
-    for l in range(1, matching.layers_a):
-        ax.axvline(l * matching.heads_a - 0.5, color="white", lw=0.6)
-    for l in range(1, matching.layers_b):
-        ax.axhline(l * matching.heads_b - 0.5, color="white", lw=0.6)
-    best = np.argmin(js, axis=1)
-    for j, i in enumerate(best):
-        ax.add_patch(Rectangle((i - 0.5, j - 0.5), 1, 1, fill=False, ec="black", lw=1.0))
-    ax.set_xlabel(f"head of {model_a} (A)")
-    ax.set_ylabel(f"head of {model_b} (B)")
-    fig.colorbar(im, ax=ax, fraction=0.046, pad=0.03, label="mean JS divergence (bits)")
-    ax.set_title("Which head of A does each head of B resemble?", fontsize=10)
+def matching_caption(matching: HeadMatching, model_a: str, model_b: str, where: str) -> str:
+    """What the head matching map shows, in words."""
+    best = np.argmin(matching.js, axis=1)
     moved = sum(
         1 for j, i in enumerate(best) if _position(j, matching.heads_b) != _position(i, matching.heads_a)
     )
-    _caption(
-        fig,
-        f"Row = a head of B, column = a head of A; framed: the closest A head (lowest divergence) of each B head. "
-        f"{count(moved, 'head')} of B resemble an A head at another position most. Over "
-        f"{count(matching.rows_compared, 'query row')} of {where}; dark = similar.",
+    return (
+        f"Row: a head of B ({model_b}); column: a head of A ({model_a}); each cell the mean Jensen-Shannon "
+        f"divergence between their attention rows over {count(matching.rows_compared, 'query row')} of "
+        f"{where} (bits). Framed: the closest A head of each B head (lowest divergence); "
+        f"{count(moved, 'head')} of B {'is' if moved == 1 else 'are'} closest to an A head at another position. "
+        f"Colour: {palette.SEQUENTIAL_TEXT}, from 0 (the same attention) to the largest divergence "
+        f"({bits(top_of(matching.js))})."
     )
+
+
+def _name_room(layers: int, heads: int, cell: float) -> float:
+    """Inches the head (or layer) names and the axis title take beside a heads-by-heads axis."""
+    longest = head_name(layers - 1, heads - 1) if cell * 72.0 >= 1.35 * MIN_FONT else layer_name(layers - 1)
+    return 0.2 + text_width(longest, MIN_FONT) + 0.3
+
+
+def matching_figure(matching: HeadMatching, model_a: str, model_b: str, where: str) -> Figure:
+    """Every head of B against every head of A (mean JS, bits); each B head's closest A head is framed.
+
+    Heads are ordered layer by layer (white lines between layers) and named one by one where the
+    names fit, else by layer; the divergence is printed in each cell where it fits.
+    """
+    js = matching.js
+    kb, ka = js.shape
+    heading = "Which head of A does each head of B resemble?"
+    caption = matching_caption(matching, model_a, model_b, where)
+    room_guess = 0.2 + text_width(head_name(max(matching.layers_a, matching.layers_b), 99), MIN_FONT) + 0.3
+    cell = min((FITS_BOTH[0] - room_guess - BAR_ROOM - 0.2) / ka, 7.2 / kb, 0.32)
+    left = _name_room(matching.layers_b, matching.heads_b, cell)
+    below = _name_room(matching.layers_a, matching.heads_a, cell)
+    matrix_w, matrix_h = cell * ka, cell * kb
+    width = max(left + matrix_w + BAR_ROOM, 5.6)
+    top = heading_height(heading, width)
+    body = max(matrix_h, MIN_BODY)
+    height = top + body + below + caption_height(caption, width)
+    fig = fitted_figure(width, height)
+    draw_heading(fig, heading)
+    ax = axes_at(fig, left, top, matrix_w, matrix_h)
+    peak = top_of(js)
+    im = ax.imshow(js, cmap=palette.sequential_map(), vmin=0.0, vmax=peak, aspect="auto")
+    head_ticks(ax, "x", matching.layers_a, matching.heads_a, matrix_w)
+    head_ticks(ax, "y", matching.layers_b, matching.heads_b, matrix_h)
+    layer_lines(ax, matching.layers_a, matching.heads_a, matching.layers_b, matching.heads_b)
+    cell_texts(ax, js, [weight(v, 2) for v in js.ravel()], cell, peak)
+    frame_cells(ax, [(j, int(i)) for j, i in enumerate(np.argmin(js, axis=1))], cell)
+    ax.set_xlabel(shorten(f"head of A ({model_a})", matrix_w, MIN_FONT + 1), fontsize=MIN_FONT + 1)
+    ax.set_ylabel(shorten(f"head of B ({model_b})", matrix_h, MIN_FONT + 1), fontsize=MIN_FONT + 1)
+    colour_bar(fig, im, left + matrix_w + 0.15, top, body, SCALE_LABEL)
+    draw_caption(fig, caption, top + body + below)
     return fig
 
 

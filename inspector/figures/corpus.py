@@ -21,10 +21,18 @@ from inspector.corpus.pruning import PruningResult
 from inspector.corpus.redundancy import Redundancy
 from inspector.corpus.run import Evaluation
 from inspector.figures.files import atomic_write
-from inspector.figures.paper import MIN_FONT, Page, fit_size, line_height, text_width, tick_step, wrap
+from inspector.figures.grids import colour_bar, head_grid, layer_lines
+from inspector.figures.paper import (
+    MIN_FONT,
+    axes_at,
+    caption_height,
+    draw_caption,
+    fitted_figure,
+    text_width,
+    tick_step,
+)
 
 FIGURE_FORMATS: tuple[str, ...] = ("png", "svg")
-CAPTION_FONT = 7.5
 _ANNOTATE_UP_TO = 20
 ORDER_STYLES: tuple[tuple[str, str, str], ...] = (
     ("-", "o", palette.INK),
@@ -34,57 +42,12 @@ ORDER_STYLES: tuple[tuple[str, str, str], ...] = (
 """(line style, marker, grey) per pruning order, as the window's pruning plot draws them."""
 
 
-def _figure(width: float, height: float) -> Figure:
-    width, height = fit_size(width, height)
-    return Page(width, height).fig
-
-
-def _caption(fig: Figure, text: str, top: float | None = None) -> None:
-    """``text`` wrapped under the body, from ``top`` inches below the figure's top edge (None: at the foot,
-    wrapped by matplotlib, for figures laid out in figure fractions)."""
-    w, h = fig.get_size_inches()
-    if top is None:
-        fig.text(
-            0.01, 0.01, text, fontsize=CAPTION_FONT, ha="left", va="bottom", wrap=True, color=palette.DIM_INK
-        )
-        return
-    lines = wrap(text, w - 0.3, CAPTION_FONT)
-    for k, line in enumerate(lines):
-        fig.text(
-            0.15 / w,
-            1 - (top + k * line_height(CAPTION_FONT)) / h,
-            line,
-            fontsize=CAPTION_FONT,
-            ha="left",
-            va="top",
-            color=palette.DIM_INK,
-        )
-
-
-def _caption_height(text: str, width: float) -> float:
-    return 0.15 + len(wrap(text, width - 0.3, CAPTION_FONT)) * line_height(CAPTION_FONT)
-
-
-def _axes(fig: Figure, x: float, y: float, w: float, h: float):
-    """An axes at (x, y, w, h) inches from the figure's top-left corner."""
-    fw, fh = fig.get_size_inches()
-    return fig.add_axes((x / fw, 1 - (y + h) / fh, w / fw, h / fh))
-
-
 def _model(model: str) -> str:
     return f"Model {model}. " if model else ""
 
 
 PERCENT_TICKS = FuncFormatter(lambda value, _pos: fmt.percent(value, 0))
 """Axis ticks of a fraction, written as whole percentages (``80%``)."""
-
-
-def _bar(fig: Figure, image, x: float, y: float, h: float, label: str):
-    cax = _axes(fig, x, y, 0.14, h)
-    bar = fig.colorbar(image, cax=cax)
-    bar.set_label(label, fontsize=MIN_FONT + 0.5)
-    bar.ax.tick_params(labelsize=MIN_FONT)
-    return bar
 
 
 def label_room(names: list[str]) -> float:
@@ -100,7 +63,7 @@ def draw_confusion(fig: Figure, x: float, y: float, side: float, evaluation: Eva
     cm = evaluation.confusion
     n = len(evaluation.labels)
     names = list(evaluation.labels)
-    ax = _axes(fig, x, y, side, side)
+    ax = axes_at(fig, x, y, side, side)
     share = cm / np.maximum(cm.sum(1, keepdims=True), 1)
     cmap = palette.sequential_map()
     im = ax.imshow(share, cmap=cmap, vmin=0, vmax=1)
@@ -124,7 +87,7 @@ def draw_confusion(fig: Figure, x: float, y: float, side: float, evaluation: Eva
                         fontsize=MIN_FONT,
                         color=palette.text_on(cmap(float(share[i, j]))),
                     )
-    bar = _bar(fig, im, x + side + 0.2, y, side, "share of the expected label's row")
+    bar = colour_bar(fig, im, x + side + 0.2, y, side, "share of the expected label's row")
     bar.ax.yaxis.set_major_formatter(PERCENT_TICKS)
     return y + side + label_room(names)
 
@@ -145,9 +108,9 @@ def confusion_figure(evaluation: Evaluation, model: str = "") -> Figure:
     side = float(np.clip(0.34 * n + 1.0, 3.0, 8.27 - room - 1.4))
     caption = confusion_caption(evaluation, model)
     width = room + side + 1.3
-    cap_h = _caption_height(caption, width)
+    cap_h = caption_height(caption, width)
     height = 0.5 + side + room + 0.1 + cap_h
-    fig = _figure(width, height)
+    fig = fitted_figure(width, height)
     bottom = draw_confusion(fig, room + 0.05, 0.5, side, evaluation)
     fig.text(
         0.15 / width,
@@ -157,35 +120,8 @@ def confusion_figure(evaluation: Evaluation, model: str = "") -> Figure:
         va="top",
         ha="left",
     )
-    _caption(fig, caption, bottom + 0.1)
+    draw_caption(fig, caption, bottom + 0.1)
     return fig
-
-
-def _head_grid(ax, values: np.ndarray, decimals: int, cell: float) -> object:
-    layers, heads = values.shape
-    cmap = palette.sequential_map()
-    top = float(np.nanmax(values)) if values.size else 0.0
-    im = ax.imshow(values, cmap=cmap, aspect="auto", vmin=0.0, vmax=top or 1.0)
-    xs = tick_step(heads, cell * heads, MIN_FONT, pitch=2.4)
-    ys = tick_step(layers, cell * layers, MIN_FONT)
-    ax.set_xticks(range(0, heads, xs), [fmt.head_tick(h) for h in range(0, heads, xs)], fontsize=MIN_FONT)
-    ax.set_yticks(range(0, layers, ys), [fmt.layer_name(l) for l in range(0, layers, ys)], fontsize=MIN_FONT)
-    ax.set_xlabel("head", fontsize=MIN_FONT + 1)
-    ax.set_ylabel("layer", fontsize=MIN_FONT + 1)
-    texts = [fmt.weight(v, decimals) for v in values.ravel()]
-    if texts and max(text_width(t, MIN_FONT) for t in texts) < 0.92 * cell:
-        for l in range(layers):
-            for h in range(heads):
-                ax.text(
-                    h,
-                    l,
-                    texts[l * heads + h],
-                    ha="center",
-                    va="center",
-                    fontsize=MIN_FONT,
-                    color=palette.text_on(cmap(float(values[l, h]) / (top or 1.0))),
-                )
-    return im
 
 
 def importance_cell(importance: HeadImportance, width: float = 6.2) -> float:
@@ -196,9 +132,9 @@ def importance_cell(importance: HeadImportance, width: float = 6.2) -> float:
 def draw_importance(fig: Figure, x: float, y: float, cell: float, importance: HeadImportance) -> float:
     """The importance grid at (x, y) with its colour bar; returns the y below it."""
     layers, heads = importance.normalized.shape
-    ax = _axes(fig, x, y, cell * heads, cell * layers)
-    im = _head_grid(ax, importance.normalized, 2, cell)
-    _bar(fig, im, x + cell * heads + 0.15, y, cell * layers, "importance")
+    ax = axes_at(fig, x, y, cell * heads, cell * layers)
+    im = head_grid(ax, importance.normalized, cell)
+    colour_bar(fig, im, x + cell * heads + 0.15, y, cell * layers, "importance")
     return y + cell * layers + 0.45
 
 
@@ -216,9 +152,9 @@ def importance_figure(importance: HeadImportance, model: str = "") -> Figure:
     cell = importance_cell(importance)
     caption = importance_caption(importance, model)
     width = 0.8 + cell * heads + 1.3
-    cap_h = _caption_height(caption, width)
+    cap_h = caption_height(caption, width)
     height = 0.55 + cell * layers + 0.55 + cap_h
-    fig = _figure(width, height)
+    fig = fitted_figure(width, height)
     bottom = draw_importance(fig, 0.7, 0.55, cell, importance)
     fig.text(
         0.15 / width,
@@ -227,7 +163,7 @@ def importance_figure(importance: HeadImportance, model: str = "") -> Figure:
         fontsize=10,
         va="top",
     )
-    _caption(fig, caption, bottom + 0.05)
+    draw_caption(fig, caption, bottom + 0.05)
     return fig
 
 
@@ -237,7 +173,7 @@ def draw_similarity(fig: Figure, x: float, y: float, side: float, redundancy: Re
 
     sim = redundancy.similarity
     k, heads = len(sim), redundancy.num_heads
-    ax = _axes(fig, x, y, side, side)
+    ax = axes_at(fig, x, y, side, side)
     off = sim[~np.eye(k, dtype=bool)] if k > 1 else np.ones(1)
     im = ax.imshow(sim, cmap=palette.sequential_map(), vmin=float(off.min()), vmax=1.0)
     layers = redundancy.num_layers
@@ -246,9 +182,7 @@ def draw_similarity(fig: Figure, x: float, y: float, side: float, redundancy: Re
     names = [fmt.layer_name(l) for l in range(0, layers, step)]
     ax.set_xticks(centres, names, fontsize=MIN_FONT)
     ax.set_yticks(centres, names, fontsize=MIN_FONT)
-    for l in range(1, layers):
-        ax.axhline(l * heads - 0.5, color="white", lw=0.6)
-        ax.axvline(l * heads - 0.5, color="white", lw=0.6)
+    layer_lines(ax, layers, heads, layers, heads)
     for group in redundancy.groups:
         for a in group:
             for b in group:
@@ -257,7 +191,7 @@ def draw_similarity(fig: Figure, x: float, y: float, side: float, redundancy: Re
                     ax.add_patch(
                         Rectangle((j - 0.5, i - 0.5), 1, 1, fill=False, edgecolor=palette.INK, lw=0.8)
                     )
-    _bar(fig, im, x + side + 0.15, y, side, "1 \u2212 mean JS divergence (bits)")
+    colour_bar(fig, im, x + side + 0.15, y, side, "1 \u2212 mean JS divergence (bits)")
     return y + side + 0.35
 
 
@@ -278,9 +212,9 @@ def similarity_figure(redundancy: Redundancy, model: str = "") -> Figure:
     side = 5.6
     caption = similarity_caption(redundancy, model)
     width = 0.6 + side + 1.4
-    cap_h = _caption_height(caption, width)
+    cap_h = caption_height(caption, width)
     height = 0.55 + side + 0.45 + cap_h
-    fig = _figure(width, height)
+    fig = fitted_figure(width, height)
     bottom = draw_similarity(fig, 0.55, 0.55, side, redundancy)
     fig.text(
         0.15 / width,
@@ -289,13 +223,13 @@ def similarity_figure(redundancy: Redundancy, model: str = "") -> Figure:
         fontsize=10,
         va="top",
     )
-    _caption(fig, caption, bottom + 0.05)
+    draw_caption(fig, caption, bottom + 0.05)
     return fig
 
 
 def draw_pruning(fig: Figure, x: float, y: float, w: float, h: float, pruning: PruningResult) -> float:
     """Accuracy against the share of heads switched off at (x, y, w, h); returns the y below it."""
-    ax = _axes(fig, x, y, w, h)
+    ax = axes_at(fig, x, y, w, h)
     for i, curve in enumerate(pruning.curves):
         dash, marker, grey = ORDER_STYLES[i % len(ORDER_STYLES)]
         ax.plot(
@@ -357,12 +291,12 @@ def pruning_figure(pruning: PruningResult, model: str = "") -> Figure:
     """Accuracy against the share of heads switched off, one grey line per order; the exported mask in the accent."""
     caption = pruning_caption(pruning, model)
     width = 6.8
-    cap_h = _caption_height(caption, width)
+    cap_h = caption_height(caption, width)
     height = 0.45 + 3.6 + 0.55 + cap_h
-    fig = _figure(width, height)
+    fig = fitted_figure(width, height)
     bottom = draw_pruning(fig, 0.75, 0.45, width - 1.0, 3.6, pruning)
     fig.text(0.15 / width, 1 - 0.1 / height, "Pruning simulation (no retraining)", fontsize=10, va="top")
-    _caption(fig, caption, bottom)
+    draw_caption(fig, caption, bottom)
     return fig
 
 

@@ -33,6 +33,10 @@ MIN_FONT = 7.0
 """Smallest font size of any printed text, in points at print size."""
 BODY_FONT = 8.0
 TITLE_FONT = 11.0
+CAPTION_FONT = 7.5
+"""Captions under the figures."""
+HEADING_FONT = 10.0
+"""The one-line heading of a single exported figure."""
 MARGIN = 0.45
 """Page margin in inches."""
 CHAR_WIDTH = 0.58
@@ -169,3 +173,59 @@ class Page:
     def axes(self, x: float, y: float, w: float, h: float):
         """A real matplotlib axes at the inch rectangle (x, y, w, h) measured from the top-left."""
         return self.fig.add_axes((x / self.width, 1 - (y + h) / self.height, w / self.width, h / self.height))
+
+
+# -- single figures laid out in inches (corpus and comparison figures) -------------------------------
+def fitted_figure(width: float, height: float) -> Figure:
+    """A figure of (width, height) inches, shrunk to fit A4 and Letter (see :func:`fit_size`).
+
+    Lay its parts out with :func:`axes_at`, :func:`draw_heading` and :func:`draw_caption`,
+    which measure inches from the top-left corner; size it so that nothing needs shrinking.
+    """
+    return Page(*fit_size(width, height)).fig
+
+
+def axes_at(fig: Figure, x: float, y: float, w: float, h: float):
+    """An axes at (x, y, w, h) inches from the figure's top-left corner."""
+    fw, fh = fig.get_size_inches()
+    return fig.add_axes((x / fw, 1 - (y + h) / fh, w / fw, h / fh))
+
+
+def heading_lines(text: str, width: float) -> list[str]:
+    """The heading wrapped to a figure ``width`` inches wide."""
+    return wrap(text, width - 0.3, HEADING_FONT)
+
+
+def heading_height(text: str, width: float) -> float:
+    """Inches the heading takes from the figure's top edge, with the gap below it."""
+    return 0.12 + len(heading_lines(text, width)) * line_height(HEADING_FONT) + 0.15
+
+
+def draw_heading(fig: Figure, text: str) -> float:
+    """The heading at the figure's top-left, wrapped to its width; returns the y below it (inches)."""
+    w, h = fig.get_size_inches()
+    y = 0.12
+    for line in heading_lines(text, w):
+        fig.text(0.15 / w, 1 - y / h, line, fontsize=HEADING_FONT, va="top", ha="left", color=palette.INK)
+        y += line_height(HEADING_FONT)
+    return y + 0.15
+
+
+def caption_height(text: str, width: float) -> float:
+    """Inches a caption takes under a figure ``width`` inches wide (with its top gap)."""
+    return 0.15 + len(wrap(text, width - 0.3, CAPTION_FONT)) * line_height(CAPTION_FONT)
+
+
+def draw_caption(fig: Figure, text: str, top: float) -> None:
+    """``text`` wrapped under the body, from ``top`` inches below the figure's top edge."""
+    w, h = fig.get_size_inches()
+    for k, line in enumerate(wrap(text, w - 0.3, CAPTION_FONT)):
+        fig.text(
+            0.15 / w,
+            1 - (top + k * line_height(CAPTION_FONT)) / h,
+            line,
+            fontsize=CAPTION_FONT,
+            ha="left",
+            va="top",
+            color=palette.DIM_INK,
+        )

@@ -19,7 +19,7 @@ from inspector.comparison.run import ChangedUtterance, ComparisonReport, compare
 from inspector.comparison.settings import ComparisonSettings
 from inspector.corpus.dataset import read_labelled
 from inspector.corpus.run import StopCheck
-from inspector.formatting import bits, count, head_name, percent, points
+from inspector.formatting import bits, count, head_name, percent, points, signed
 from inspector.threads import background_job_threads, set_torch_threads
 from ui.corpus.state import CorpusRequest
 
@@ -114,12 +114,7 @@ def changed_rows(items: list[ChangedUtterance]) -> list[tuple[str, str, str, str
 
 def change_texts(report: ComparisonReport) -> list[list[str]]:
     """Cell texts of the head change map: the divergence, '=' for unchanged heads, '' where A has none."""
-    m = report.matching
-    same, unchanged = m.same_position, m.unchanged
-    return [
-        ["" if np.isnan(v) else ("=" if unchanged[l, h] else f"{v:.2f}") for h, v in enumerate(row)]
-        for l, row in enumerate(same)
-    ]
+    return report.matching.change_texts()
 
 
 def change_description(report: ComparisonReport, layer: int, head: int, metric: str = "entropy") -> str:
@@ -135,7 +130,7 @@ def change_description(report: ComparisonReport, layer: int, head: int, metric: 
     else:
         first = f"B's {name} against A's {name}: {bits(same)}"
     delta = report.metric_delta(metric)[layer, head]
-    change = "" if np.isnan(delta) else f"; mean {metric} {delta:+.3f}"
+    change = "" if np.isnan(delta) else f"; mean {metric} {signed(delta)}"
     return f"{first}; closest A head {head_name(la, ha)} ({bits(m.best_js[layer, head])}){change}"
 
 
