@@ -321,6 +321,44 @@ def test_cli_writes_every_file_under_stable_names(folders, capsys):
     assert one["heads"][0]["unchanged"] is True
 
 
+def strict_json(text: str):
+    """Parse ``text`` as standard JSON: the non-standard constants NaN, Infinity and -Infinity fail the test."""
+    return json.loads(text, parse_constant=lambda name: pytest.fail(f"bare {name} in the JSON output"))
+
+
+def test_cli_json_never_carries_a_bare_nan(folders, capsys, monkeypatch, tmp_path):
+    """A value that is not a number reaches ``--json`` output (one sentence and a data file) as null.
+
+    Reference: RFC 8259, section 6 (JSON has no NaN or Infinity); Python's json.loads, whose parse_constant
+    hook sees every such constant. The gaps are planted in the documents the command prints.
+    """
+    import inspector.comparison.report as report
+
+    def with_gaps(make):
+        def planted(*args, **kwargs):
+            doc = make(*args, **kwargs)
+            doc["heads"][0]["entropy_b"] = float("nan")
+            doc["heads"][1]["js_best_match"] = float("inf")
+            return doc
+
+        return planted
+
+    monkeypatch.setattr(report, "sentence_dict", with_gaps(report.sentence_dict))
+    monkeypatch.setattr(report, "comparison_dict", with_gaps(report.comparison_dict))
+    a, b = str(folders["tiny"]), str(folders["tiny_copy"])
+    assert main(["compare", a, b, "--text", SENTENCE, "--json"]) == 0
+    one = strict_json(capsys.readouterr().out)
+    out = tmp_path / "out"
+    assert (
+        main(["compare", a, b, str(folders["csv"]), "--out", str(out), "--json", "--quiet", "--no-figures"])
+        == 0
+    )
+    many = strict_json(capsys.readouterr().out)
+    for doc in (one, many, strict_json((out / "comparison.json").read_text(encoding="utf-8"))):
+        assert doc["heads"][0]["entropy_b"] is None and doc["heads"][1]["js_best_match"] is None
+        assert isinstance(doc["heads"][0]["js_best_match"], float)
+
+
 def test_cli_leaves_same_position_cells_empty_where_a_has_no_head(folders, capsys):
     """head_changes.csv is empty (and comparison.json null) at positions model A does not have; figures.
 

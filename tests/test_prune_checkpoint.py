@@ -173,6 +173,36 @@ def test_prune_reads_accuracy_from_the_corpus_report_beside_the_mask(tmp_path, c
     assert "513 utterances" in note and "importance" in note
 
 
+def test_prune_json_writes_a_missing_accuracy_as_null(tmp_path, capsys):
+    """A summary.json beside the mask whose accuracy is NaN (Python's json module writes and reads the bare
+    constant) comes out of ``prune --json`` as null, never as a bare NaN.
+
+    Reference: RFC 8259, section 6 (JSON has no NaN or Infinity); json.loads' parse_constant hook.
+    """
+    report = tmp_path / "report"
+    report.mkdir()
+    mask = {"1": [2]}
+    (report / "prune_mask.json").write_text(json.dumps(mask), encoding="utf-8")
+    summary = {"pruning": {"mask": mask, "accuracy_before": float("nan"), "accuracy_after": 0.5}}
+    (report / "summary.json").write_text(json.dumps(summary), encoding="utf-8")
+    assert "NaN" in (report / "summary.json").read_text(encoding="utf-8")
+    code = main(
+        [
+            "prune",
+            str(SAMPLE_MODEL),
+            "--mask",
+            str(report / "prune_mask.json"),
+            "--out",
+            str(tmp_path / "p"),
+            "--json",
+        ]
+    )
+    doc = json.loads(
+        capsys.readouterr().out, parse_constant=lambda name: pytest.fail(f"bare {name} in the JSON")
+    )
+    assert code == 0 and doc["accuracy_before"] is None and doc["accuracy_after"] == 0.5
+
+
 @pytest.mark.parametrize("family", sorted(CONFIGS))
 def test_every_family_prunes_through_the_adapter_table(family, tmp_path, minilm_dir):
     """Reference: transformers' own model class of each family loading the written folder; logits equal the

@@ -9,7 +9,14 @@ from pathlib import Path
 import numpy as np
 
 from inspector import formatting as fmt
-from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model, mask_record
+from inspector.cli.common import (
+    add_mask_option,
+    add_model_command,
+    load_mask,
+    load_model,
+    mask_record,
+    print_json,
+)
 from inspector.errors import HeadcountError
 
 _TABLE_COLUMNS = (
@@ -59,7 +66,7 @@ def _print_table(result, out) -> None:
 
 def cmd_analyze(args: argparse.Namespace) -> int:
     from inspector.checkpoint.tokens import text_problem
-    from inspector.figures.files import check_output_file, json_text, save_npz
+    from inspector.figures.files import check_output_file, save_npz
     from inspector.measures.analysis import analyze_sentence
 
     problem = text_problem(args.text)
@@ -72,7 +79,7 @@ def cmd_analyze(args: argparse.Namespace) -> int:
     if args.save_attention:
         save_npz(Path(args.save_attention), attention=result.attention.astype(np.float32))
     if args.json:
-        sys.stdout.write(json_text(analysis_json(result)) + "\n")
+        print_json(analysis_json(result))
     else:
         _print_table(result, sys.stdout)
     return 0

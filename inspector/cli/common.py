@@ -1,4 +1,5 @@
-"""What every command shares: the exit status for user errors, the model argument, opening the model, masks."""
+"""What every command shares: the exit status for user errors, the model argument, opening the model, masks,
+the options of a labelled set, the progress bar on stderr and JSON on stdout."""
 
 from __future__ import annotations
 
@@ -104,3 +105,73 @@ def add_threads_option(p: argparse.ArgumentParser) -> None:
         help=f"CPU threads for torch and numpy's BLAS (default: {ENV_VAR} if set, else the cores "
         "this process may use)",
     )
+
+
+DATA_FORMATS = ("auto", "csv", "jsonl")
+
+
+def add_data_options(p: argparse.ArgumentParser, batch_size: int) -> None:
+    """The options that say how to read a labelled set and how to batch it (corpus and compare)."""
+    from inspector.corpus.dataset import BAD_ROW_POLICIES
+
+    p.add_argument("--text-field", default="text", help="column/key holding the utterance (default: text)")
+    p.add_argument("--label-field", default="label", help="column/key holding the label (default: label)")
+    p.add_argument(
+        "--format", choices=DATA_FORMATS, default="auto", help="data format (default: from the suffix)"
+    )
+    p.add_argument(
+        "--on-bad-row",
+        choices=BAD_ROW_POLICIES,
+        default="skip",
+        help="skip bad rows and list them, or fail (default: skip)",
+    )
+    p.add_argument(
+        "--batch-size",
+        type=positive_int,
+        default=batch_size,
+        help=f"utterances per batch (default: {batch_size})",
+    )
+
+
+def add_report_options(p: argparse.ArgumentParser, json_help: str) -> None:
+    """``--no-figures``, ``--json`` and ``--quiet``: the outputs of a command that writes a report folder."""
+    p.add_argument("--no-figures", action="store_true", help="write no PNG/SVG figures")
+    p.add_argument("--json", action="store_true", help=json_help)
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
+class ProgressBar:
+    """A tqdm bar on stderr over the batches of a run, relabelled per phase (nothing when disabled).
+
+    Pass :meth:`progress` as ``on_progress`` and :meth:`phase` as ``on_phase``; call :meth:`close` at the end.
+    """
+
+    def __init__(self, enabled: bool) -> None:
+        self.enabled = enabled
+        self.bar = None
+
+    def phase(self, name: str) -> None:
+        if self.bar is not None:
+            self.bar.set_description(name)
+
+    def progress(self, done: int, total: int) -> None:
+        if not self.enabled:
+            return
+        if self.bar is None:
+            from tqdm import tqdm
+
+            self.bar = tqdm(total=total, unit="batch", file=sys.stderr, desc="scan", leave=False)
+        self.bar.total = total
+        self.bar.update(done - self.bar.n)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+
+
+def print_json(doc: object, **options: object) -> None:
+    """``doc`` as one line of standard JSON on stdout: NaN and infinities become null, never bare ``NaN``
+    (:func:`inspector.figures.files.json_text`)."""
+    from inspector.figures.files import json_text
+
+    sys.stdout.write(json_text(doc, **options) + "\n")

@@ -12,10 +12,9 @@ a progress bar on stderr.
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 
-from inspector.cli.corpus import _Bar, add_data_options
+from inspector.cli.common import ProgressBar, add_data_options, add_report_options, print_json
 from inspector.comparison.settings import ComparisonSettings
 from inspector.errors import HeadcountError
 from inspector.formatting import bits, count, head_name, percent, points
@@ -146,8 +145,7 @@ def cmd_compare(args: argparse.Namespace) -> int:
 
         doc = sentence_dict(compare_sentence(lm_a, lm_b, args.text))
         if args.json:
-            json.dump(doc, sys.stdout, ensure_ascii=False, allow_nan=False)
-            sys.stdout.write("\n")
+            print_json(doc, ensure_ascii=False)
         else:
             _print_sentence(doc, sys.stdout)
         return 0
@@ -164,7 +162,7 @@ def cmd_compare(args: argparse.Namespace) -> int:
         known_labels=shared_labels(lm_a, lm_b),
         on_bad_row=args.on_bad_row,
     )
-    bar = _Bar(enabled=not args.quiet)
+    bar = ProgressBar(enabled=not args.quiet)
     try:
         report = compare_corpus(lm_a, lm_b, data, settings, on_progress=bar.progress, on_phase=bar.phase)
     finally:
@@ -172,8 +170,7 @@ def cmd_compare(args: argparse.Namespace) -> int:
     write_comparison(report, args.out, figures=not args.no_figures)
     doc = comparison_dict(report)
     if args.json:
-        json.dump(doc, sys.stdout, ensure_ascii=False, allow_nan=False)
-        sys.stdout.write("\n")
+        print_json(doc, ensure_ascii=False)
     else:
         _print_report(doc, args.out, sys.stdout)
     return 0
@@ -198,7 +195,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     )
     p.add_argument("--text", help="compare the two models on this one sentence")
     p.add_argument("--out", metavar="DIR", help="folder for the report files (needed with DATA_FILE)")
-    p.add_argument("--json", action="store_true", help="print the JSON document on stdout")
     p.add_argument(
         "--allow-pickle",
         action="store_true",
@@ -213,8 +209,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         help=f"query rows per batch compared for the head matching; 0 = all rows (default: {d.match_rows})",
     )
     p.add_argument("--seed", type=int, default=d.seed, help=f"seed of the row draw (default: {d.seed})")
-    p.add_argument("--no-figures", action="store_true", help="write no PNG/SVG figures")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    add_report_options(p, "print the JSON document on stdout")
     p.set_defaults(func=cmd_compare)
 
 

@@ -15,19 +15,22 @@ from dataclasses import replace
 
 from inspector import formatting as fmt
 from inspector.cli.common import (
+    ProgressBar,
+    add_data_options,
     add_mask_option,
     add_model_command,
+    add_report_options,
     load_mask,
     load_model,
     non_negative_int,
     positive_int,
+    print_json,
 )
-from inspector.corpus.dataset import BAD_ROW_POLICIES, read_labelled
+from inspector.corpus.dataset import read_labelled
 from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
 from inspector.corpus.settings import CorpusSettings
 from inspector.errors import HeadcountError
 
-_FORMATS = ("auto", "csv", "jsonl")
 _SHOWN_BAD_ROWS = 10
 
 
@@ -71,32 +74,6 @@ def settings_from_args(args: argparse.Namespace) -> CorpusSettings:
         mask_order=args.mask_order,
         seed=args.seed,
     )
-
-
-class _Bar:
-    """tqdm progress on stderr, relabelled per phase."""
-
-    def __init__(self, enabled: bool) -> None:
-        self.enabled = enabled
-        self.bar = None
-
-    def phase(self, name: str) -> None:
-        if self.bar is not None:
-            self.bar.set_description(name)
-
-    def progress(self, done: int, total: int) -> None:
-        if not self.enabled:
-            return
-        if self.bar is None:
-            from tqdm import tqdm
-
-            self.bar = tqdm(total=total, unit="batch", file=sys.stderr, desc="scan", leave=False)
-        self.bar.total = total
-        self.bar.update(done - self.bar.n)
-
-    def close(self) -> None:
-        if self.bar is not None:
-            self.bar.close()
 
 
 def _head(h: dict) -> str:
@@ -157,7 +134,6 @@ def _print_report(summary: dict, out_dir: str, out) -> None:
 def cmd_corpus(args: argparse.Namespace) -> int:
     from inspector.corpus.report import check_report_folder, summary_dict, write_report
     from inspector.corpus.run import run_corpus
-    from inspector.figures.files import json_text
 
     settings = settings_from_args(args)
     check_report_folder(args.out)
@@ -174,7 +150,7 @@ def cmd_corpus(args: argparse.Namespace) -> int:
         known_labels=lm.labels if lm.has_prediction else None,
         on_bad_row=args.on_bad_row,
     )
-    bar = _Bar(enabled=not args.quiet)
+    bar = ProgressBar(enabled=not args.quiet)
     try:
         report = run_corpus(lm, data, settings, on_progress=bar.progress, on_phase=bar.phase)
     finally:
@@ -182,31 +158,10 @@ def cmd_corpus(args: argparse.Namespace) -> int:
     write_report(report, args.out, figures=not args.no_figures)
     summary = summary_dict(report)
     if args.json:
-        sys.stdout.write(json_text(summary, ensure_ascii=False) + "\n")
+        print_json(summary, ensure_ascii=False)
     else:
         _print_report(summary, args.out, sys.stdout)
     return 0
-
-
-def add_data_options(p: argparse.ArgumentParser, batch_size: int) -> None:
-    """The options that say how to read a labelled set and how to batch it (corpus and compare)."""
-    p.add_argument("--text-field", default="text", help="column/key holding the utterance (default: text)")
-    p.add_argument("--label-field", default="label", help="column/key holding the label (default: label)")
-    p.add_argument(
-        "--format", choices=_FORMATS, default="auto", help="data format (default: from the suffix)"
-    )
-    p.add_argument(
-        "--on-bad-row",
-        choices=BAD_ROW_POLICIES,
-        default="skip",
-        help="skip bad rows and list them, or fail (default: skip)",
-    )
-    p.add_argument(
-        "--batch-size",
-        type=positive_int,
-        default=batch_size,
-        help=f"utterances per batch (default: {batch_size})",
-    )
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -302,9 +257,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         help=f"seed for the random order and row draws (default: {d.seed})",
     )
     p.add_argument("--no-importance", action="store_true", help="skip the gradient pass")
-    p.add_argument("--no-figures", action="store_true", help="write no PNG/SVG figures")
-    p.add_argument("--json", action="store_true", help="print the summary JSON on stdout")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    add_report_options(p, "print the summary JSON on stdout")
     add_mask_option(p)
     p.set_defaults(func=cmd_corpus)
 

@@ -17,6 +17,7 @@ from inspector.cli.common import (
     load_model,
     mask_record,
     positive_int,
+    print_json,
 )
 from inspector.errors import HeadcountError
 from inspector.explanation.choices import (
@@ -282,7 +283,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
     from inspector.checkpoint.tokens import text_problem
     from inspector.explanation.explain import explain_sentence, require_classifier
     from inspector.explanation.rewording import compare_rewording
-    from inspector.figures.files import check_output_file, json_text
+    from inspector.figures.files import check_output_file
 
     for option, text in (("--text", args.text), ("--compare", args.compare)):
         problem = None if text is None else text_problem(text)
@@ -322,7 +323,7 @@ def cmd_explain(args: argparse.Namespace) -> int:
         doc = explanation_json(explanation)
         if comparison is not None:
             doc["compare"] = comparison_json(comparison)
-        sys.stdout.write(json_text(doc) + "\n")
+        print_json(doc)
         return 0
     print_explanation(explanation, sys.stdout)
     if comparison is not None:

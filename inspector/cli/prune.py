@@ -15,7 +15,14 @@ import json
 import sys
 from pathlib import Path
 
-from inspector.cli.common import add_mask_option, add_model_command, load_mask, load_model, mask_record
+from inspector.cli.common import (
+    add_mask_option,
+    add_model_command,
+    load_mask,
+    load_model,
+    mask_record,
+    print_json,
+)
 from inspector.errors import HeadcountError
 
 
@@ -64,8 +71,7 @@ def cmd_prune(args: argparse.Namespace) -> int:
             "accuracy_before": provenance.accuracy_before,
             "accuracy_after": provenance.accuracy_after,
         }
-        json.dump(doc, sys.stdout)
-        sys.stdout.write("\n")
+        print_json(doc)
     else:
         print(f"wrote {out} with {mask.summary(lm.num_layers, lm.num_heads)}", file=sys.stdout)
         print(f"see {out / NOTE_FILE}: re-validate the model before it ships", file=sys.stdout)
