@@ -411,3 +411,26 @@ def test_progress_counts_batches_and_cancel_stops(folders):
             should_stop=lambda: len(calls) >= 2,
         )
     assert calls == [1, 2]
+
+
+def test_phase_progress_counts_utterances_with_the_time_left(folders):
+    """The per-phase progress (what the window's bar shows) counts utterances up to the set's size, with a time.
+
+    Reference: the number of rows of the CSV written by the test; the corpus run's PhaseProgress contract
+    (time left = elapsed x (total - done) / done); common practice, no source.
+    """
+    from ui.compare.state import progress_text
+
+    lm_a, lm_b, data = _pair(folders, "tiny", "tiny_copy")
+    steps = []
+    compare_corpus(lm_a, lm_b, data, ComparisonSettings(batch_size=4), on_step=steps.append)
+    n = len(UTTERANCES)
+    assert len(data) == n == 18
+    assert [s.done for s in steps] == [0, 4, 8, 12, 16, 18]
+    assert {s.total for s in steps} == {n} and {s.phase for s in steps} == {"compare"}
+    assert all(b.elapsed >= a.elapsed for a, b in zip(steps, steps[1:]))
+    assert steps[-1].finished and progress_text(steps[-1]).startswith("Comparison: 18 utterances in ")
+    assert (
+        progress_text(type(steps[0])("compare", 5, 20, 2.0))
+        == "Comparison: 5 of 20 utterances, about 6.0 s left"
+    )

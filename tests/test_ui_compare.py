@@ -19,6 +19,7 @@ pytest.importorskip("pytestqt")
 import torch  # noqa: E402
 from PySide6.QtCore import QMimeData, QPointF, QSettings, Qt, QUrl  # noqa: E402
 from PySide6.QtGui import QDropEvent  # noqa: E402
+from PySide6.QtWidgets import QFileDialog  # noqa: E402
 
 from inspector.checkpoint.loader import load_checkpoint  # noqa: E402
 from inspector.comparison.report import COMPARISON, FIGURES, FIXED  # noqa: E402
@@ -223,6 +224,43 @@ def test_comparison_can_be_cancelled(qtbot, window, folders):
         view.cancel()
     assert blocker.args == ["cancelled"]
     assert view.report is None and "Cancelled" in view.phase_label.text()
+
+
+def test_comparison_bar_counts_utterances_and_export_remembers_the_folder(
+    qtbot, window, folders, tmp_path, monkeypatch
+):
+    """The comparison's progress bar counts the set's utterances (as the corpus page's bars do), and the
+    folder export writes through the shared background export, its folder remembered for the next dialog.
+
+    Reference: the number of rows the test wrote (tests/corpus_models.UTTERANCES); the file names of
+    ``headcount compare``; common practice, no source.
+    """
+    from ui.widgets.export import last_folder
+
+    open_pair(qtbot, window, folders["tiny"], folders["tiny_copy"])
+    view = window.compare_view
+    assert view.progress.format() == "Comparison: not run" and not view.cancel_button.isEnabled()
+    window.corpus_page.path_edit.setText(str(folders["csv"]))
+    with qtbot.waitSignal(view.finished, timeout=WAIT_MS) as blocker:
+        view.run()
+    assert blocker.args == ["done"]
+    assert view.progress.format().startswith(f"Comparison: {len(UTTERANCES)} utterances in ")
+    assert view.progress.value() == view.progress.maximum()
+    assert view.run_button.isEnabled() and not view.cancel_button.isEnabled()
+    said = []
+    view.status.connect(said.append)
+    view.export_report(tmp_path / "out")
+    qtbot.waitUntil(lambda: bool(said), timeout=WAIT_MS)
+    assert said[0].startswith("Wrote ") and "comparison files in" in said[0]
+    assert (tmp_path / "out" / COMPARISON).is_file() and (
+        tmp_path / "out" / f"{FIGURES['change']}.svg"
+    ).is_file()
+    chosen = tmp_path / "chosen"
+    chosen.mkdir()
+    monkeypatch.setattr(QFileDialog, "getExistingDirectory", staticmethod(lambda *args: str(chosen)))
+    view.export_current()
+    qtbot.waitUntil(lambda: len(said) == 2, timeout=WAIT_MS)
+    assert (chosen / COMPARISON).is_file() and last_folder(window.settings) == chosen
 
 
 def test_the_sentence_comparison_exports_a_figure_and_every_head(qtbot, window, folders, tmp_path):

@@ -143,12 +143,19 @@ def add_report_options(p: argparse.ArgumentParser, json_help: str) -> None:
 class ProgressBar:
     """A tqdm bar on stderr over the batches of a run, relabelled per phase (nothing when disabled).
 
-    Pass :meth:`progress` as ``on_progress`` and :meth:`phase` as ``on_phase``; call :meth:`close` at the end.
+    Use it as a context manager (it closes itself) and pass :meth:`progress` as ``on_progress`` and
+    :meth:`phase` as ``on_phase``.
     """
 
     def __init__(self, enabled: bool) -> None:
         self.enabled = enabled
         self.bar = None
+
+    def __enter__(self) -> ProgressBar:
+        return self
+
+    def __exit__(self, *_exc: object) -> None:
+        self.close()
 
     def phase(self, name: str) -> None:
         if self.bar is not None:

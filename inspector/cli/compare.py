@@ -162,11 +162,8 @@ def cmd_compare(args: argparse.Namespace) -> int:
         known_labels=shared_labels(lm_a, lm_b),
         on_bad_row=args.on_bad_row,
     )
-    bar = ProgressBar(enabled=not args.quiet)
-    try:
+    with ProgressBar(enabled=not args.quiet) as bar:
         report = compare_corpus(lm_a, lm_b, data, settings, on_progress=bar.progress, on_phase=bar.phase)
-    finally:
-        bar.close()
     write_comparison(report, args.out, figures=not args.no_figures)
     doc = comparison_dict(report)
     if args.json:

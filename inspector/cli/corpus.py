@@ -150,11 +150,8 @@ def cmd_corpus(args: argparse.Namespace) -> int:
         known_labels=lm.labels if lm.has_prediction else None,
         on_bad_row=args.on_bad_row,
     )
-    bar = ProgressBar(enabled=not args.quiet)
-    try:
+    with ProgressBar(enabled=not args.quiet) as bar:
         report = run_corpus(lm, data, settings, on_progress=bar.progress, on_phase=bar.phase)
-    finally:
-        bar.close()
     write_report(report, args.out, figures=not args.no_figures)
     summary = summary_dict(report)
     if args.json:

@@ -32,6 +32,7 @@ from inspector.corpus.run import (
     PhaseCallback,
     Progress,
     ProgressCallback,
+    StepCallback,
     StopCheck,
     label_indices,
 )
@@ -204,6 +205,7 @@ def compare_corpus(
     on_progress: ProgressCallback | None = None,
     should_stop: StopCheck | None = None,
     on_phase: PhaseCallback | None = None,
+    on_step: StepCallback | None = None,
 ) -> ComparisonReport:
     """Run a labelled set through two models and compare them.
 
@@ -222,6 +224,9 @@ def compare_corpus(
         Polled before every batch; True raises :class:`inspector.corpus.run.CorpusCancelled`.
     on_phase : callable(name), optional
         Called with ``'compare'`` when the pass starts.
+    on_step : callable(PhaseProgress), optional
+        Called when the pass starts and after every batch with the utterances done, the
+        utterances in the set and the seconds since the start (the window's bar and time left).
 
     Returns
     -------
@@ -250,8 +255,8 @@ def compare_corpus(
     encoded = encode_set(shorter, data.texts)
     gold_a, gold_b = label_indices(lm_a, data), label_indices(lm_b, data)
     batches = encoded.sorted_batches(settings.batch_size)
-    progress = Progress(len(batches), on_progress, should_stop, on_phase)
-    progress.phase(PHASE)
+    progress = Progress(len(batches), on_progress, should_stop, on_phase, on_step)
+    progress.phase(PHASE, total=len(data))
     n = len(data)
     pred_a, pred_b = _Predictions(n), _Predictions(n)
     moments_a = RunningMoments((len(METRIC_NAMES), lm_a.num_layers, lm_a.num_heads))

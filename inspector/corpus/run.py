@@ -104,7 +104,8 @@ class PhaseProgress:
 
     @property
     def unit(self) -> str:
-        return PHASE_UNITS[self.phase]
+        """What the phase counts (utterances for a phase of another stage, such as the comparison's pass)."""
+        return PHASE_UNITS.get(self.phase, "utterance")
 
     @property
     def finished(self) -> bool:

@@ -1,6 +1,6 @@
 """The comparison view: a labelled set through the open model (A) and a second model (B).
 
-Top: Run / Cancel with a progress bar, the export button and the headline (both accuracies,
+Top: Run / Cancel with a progress bar (utterances done, time left), the export button and the headline (both accuracies,
 macro-F1, agreement). Below, side by side: the 2 x 2 table of right and wrong answers with the
 per-intent F1 changes; the utterances B fixed and those it broke (a click, or Enter, opens one
 in the sentence page with its expected label, where both models are shown); the head change
@@ -9,23 +9,22 @@ every head of A, each B head's closest A head framed).
 
 It reads the data file named on the corpus page (``request_source``). The run goes through
 :func:`ui.compare.state.compute_comparison` on the window's :class:`ui.widgets.worker.JobRunner`
-("compare" channel) holding ``MODEL_LOCK``; Cancel sets an event polled before every batch.
+("compare" channel) holding ``MODEL_LOCK``, through the same run controls as the corpus page
+(:class:`ui.widgets.run_controls.RunControls`); Cancel sets an event polled before every batch.
 """
 
 from __future__ import annotations
 
 import html
-import threading
 from collections.abc import Callable
 from pathlib import Path
 
-from PySide6.QtCore import QObject, QSettings, Qt, Signal
+from PySide6.QtCore import QSettings, Qt, Signal
 from PySide6.QtGui import QKeySequence, QShortcut
 from PySide6.QtWidgets import (
     QHBoxLayout,
     QHeaderView,
     QLabel,
-    QProgressBar,
     QPushButton,
     QSplitter,
     QTableWidget,
@@ -35,11 +34,12 @@ from PySide6.QtWidgets import (
 
 from inspector.checkpoint.loader import LoadedModel
 from inspector.comparison.report import write_comparison
-from inspector.comparison.run import PHASES, ComparisonReport, CorpusCancelled
+from inspector.comparison.run import PHASES, ComparisonReport
 from inspector.corpus.report import ATTENTION_CAUTION
 from inspector.formatting import count, head_name, points
 from ui.compare.state import (
     CHANGED_HEADER,
+    COMPARE_TITLES,
     INTENT_HEADER,
     TABLE_COLUMNS,
     TABLE_ROWS,
@@ -51,17 +51,19 @@ from ui.compare.state import (
     intent_rows,
     matching_description,
     moved_html,
+    progress_text,
     table_texts,
 )
-from ui.corpus.state import CorpusRequest
+from ui.corpus.state import CorpusRequest, cancel_text
+from ui.widgets.export import ask_folder, write_folder
 from ui.widgets.legend import ColourKey
 from ui.widgets.matrix_map import MatrixMap
 from ui.widgets.panel import Panel, column
+from ui.widgets.run_controls import CANCELLED, FAILED, RunControls, RunHooks
 from ui.widgets.tables import VALUE_ROLE, SignedBarDelegate, make_table, table_cell
 from ui.widgets.worker import MODEL_LOCK, JobRunner
 
 CHANNEL = "compare"
-CANCELLED = "cancelled"
 NO_SECOND = (
     "Open a second model to compare with: File \u203a Compare with a second model\u2026 (Ctrl+Shift+O)"
 )
@@ -76,10 +78,6 @@ def _fit_columns(table: QTableWidget, columns: tuple[int, ...], widest: int) -> 
     for col in columns:
         table.resizeColumnToContents(col)
         table.setColumnWidth(col, min(table.columnWidth(col), widest))
-
-
-class _Progress(QObject):
-    progress = Signal(int, int, int)
 
 
 class ComparisonView(QWidget):
@@ -104,19 +102,22 @@ class ComparisonView(QWidget):
         self.lm_a: LoadedModel | None = None
         self.lm_b: LoadedModel | None = None
         self.report: ComparisonReport | None = None
-        self._stop = threading.Event()
-        self._run = 0
-        self._bridge = _Progress(self)
-        self._bridge.progress.connect(self._progress)
-
-        self.run_button = QPushButton("&Run comparison", self)
+        self.controls = RunControls(
+            runner,
+            CHANNEL,
+            self,
+            run_text="&Run comparison",
+            titles=COMPARE_TITLES,
+            descriptions=PHASES,
+            step_text=progress_text,
+            ready=lambda: self.lm_a is not None and self.lm_b is not None,
+        )
+        self.run_button, self.cancel_button = self.controls.run_button, self.controls.cancel_button
+        self.phase_label = self.controls.phase_label
+        (self.progress,) = self.controls.phase_bars.values()
+        self.phase_label.setWordWrap(False)
         self.run_button.setToolTip("Run the data file named above through both models")
         self.run_button.clicked.connect(self.run)
-        self.cancel_button = QPushButton("&Cancel", self)
-        self.cancel_button.clicked.connect(self.cancel)
-        self.progress = QProgressBar(self)
-        self.progress.setAccessibleName("Comparison progress")
-        self.phase_label = QLabel("", self)
         self.export_button = QPushButton("E&xport comparison\u2026", self)
         self.export_button.setToolTip(
             "Write comparison.json, fixed.csv, broken.csv, head_changes.csv, intent_changes.csv and the "
@@ -125,14 +126,10 @@ class ComparisonView(QWidget):
         self.export_button.clicked.connect(self.export_current)
         controls = QHBoxLayout()
         controls.setSpacing(8)
-        for widget, stretch in (
-            (self.run_button, 0),
-            (self.cancel_button, 0),
-            (self.progress, 2),
-            (self.phase_label, 3),
-            (self.export_button, 0),
-        ):
-            controls.addWidget(widget, stretch)
+        self.controls.add_to(controls)
+        controls.setStretchFactor(self.progress, 2)
+        controls.addWidget(self.phase_label, 3)
+        controls.addWidget(self.export_button)
         self.headline = QLabel("", self)
         self.headline.setWordWrap(True)
         self.headline.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
@@ -249,7 +246,7 @@ class ComparisonView(QWidget):
 
     # -- running -----------------------------------------------------------------------------------
     def is_running(self) -> bool:
-        return self.runner.is_busy(CHANNEL)
+        return self.controls.is_running()
 
     def run(self) -> None:
         """Start a comparison in the background (ignored while one runs)."""
@@ -263,49 +260,34 @@ class ComparisonView(QWidget):
         if not request.path:
             self.error.emit("Choose a data file above (a .csv or .jsonl with text and label)")
             return
-        self._stop = threading.Event()
-        self._run += 1
-        run, stop, bridge = self._run, self._stop, self._bridge
 
-        def job() -> object:
+        def job(hooks: RunHooks) -> object:
             with MODEL_LOCK:
-                try:
-                    return compute_comparison(
-                        lm_a,
-                        lm_b,
-                        request,
-                        on_progress=lambda done, total: bridge.progress.emit(run, done, total),
-                        should_stop=stop.is_set,
-                    )
-                except CorpusCancelled:
-                    return CANCELLED
+                return compute_comparison(
+                    lm_a, lm_b, request, on_step=hooks.on_step, should_stop=hooks.should_stop
+                )
 
-        self.progress.setRange(0, 0)
-        self.phase_label.setText(PHASES["compare"])
-        self.runner.submit(CHANNEL, job, lambda result: self._done(lm_a, lm_b, result), self._failed)
+        self.controls.start(
+            job,
+            lambda result: self._done(lm_a, lm_b, result),
+            self._failed,
+            list(COMPARE_TITLES),
+            PHASES["compare"],
+        )
         self._set_running(True)
 
     def cancel(self) -> None:
-        if self.is_running():
-            self._stop.set()
-            self.cancel_button.setEnabled(False)
-            self.phase_label.setText("Stopping after the current batch\u2026")
+        self.controls.cancel()
 
     def stop(self) -> None:
-        self._stop.set()
-
-    def _progress(self, run: int, done: int, total: int) -> None:
-        if run == self._run and not self._stop.is_set():
-            self.progress.setRange(0, max(total, 1))
-            self.progress.setValue(done)
-            self.progress.setFormat("%v of %m batches")
+        self.controls.stop()
 
     def _done(self, lm_a: LoadedModel, lm_b: LoadedModel, result: object) -> None:
         if lm_a is not self.lm_a or lm_b is not self.lm_b:
             return
         if result == CANCELLED:
-            kept = "the results below are from the previous run" if self.report else "nothing was shown"
-            self.phase_label.setText(f"Cancelled \u2014 {kept}")
+            self.phase_label.setText(cancel_text([], None, self.report is not None))
+            self.controls.mark_cancelled()
             self.finished.emit("cancelled")
             return
         assert isinstance(result, ComparisonReport)
@@ -315,7 +297,7 @@ class ComparisonView(QWidget):
         self.finished.emit("done")
 
     def _failed(self, text: str) -> None:
-        self.phase_label.setText("Failed \u2014 see the message above")
+        self.phase_label.setText(FAILED)
         self.error.emit(f"Comparison: {text}")
         self.finished.emit("failed")
 
@@ -324,14 +306,8 @@ class ComparisonView(QWidget):
             self._set_running(busy)
 
     def _set_running(self, running: bool) -> None:
-        ready = self.lm_a is not None and self.lm_b is not None
-        self.run_button.setEnabled(ready and not running)
-        self.cancel_button.setEnabled(running and not self._stop.is_set())
+        self.controls.refresh(running)
         self.export_button.setEnabled(self.report is not None)
-        if not running:
-            self.progress.setRange(0, 1)
-            self.progress.setValue(1 if self.report is not None else 0)
-            self.progress.setFormat("" if self.report is None else "done")
 
     # -- showing -----------------------------------------------------------------------------------
     def clear(self, note: str) -> None:
@@ -423,31 +399,23 @@ class ComparisonView(QWidget):
     # -- export ------------------------------------------------------------------------------------
     def export_current(self) -> None:
         """Ask for a folder, then write the comparison's files there (as ``headcount compare``) in the background."""
-        from PySide6.QtWidgets import QFileDialog
-
         if self.report is None:
             self.error.emit("Nothing to export yet: run the comparison first")
             return
-        start = str(self.settings.value("compare/report_folder", str(Path.home())))
-        folder = QFileDialog.getExistingDirectory(self, "Write the comparison into a folder", start)
-        if folder:
-            self.settings.setValue("compare/report_folder", folder)
-            self.export_report(Path(folder))
+        folder = ask_folder(self, self.settings, "Write the comparison into a folder")
+        if folder is not None:
+            self.export_report(folder)
 
     def export_report(self, folder: Path) -> int:
         """Write the comparison's files into ``folder`` on the export channel; returns the job number."""
         report = self.report
         if report is None:
             raise ValueError("nothing to export: no comparison yet")
-
-        def done(written: object) -> None:
-            files = sum(len(paths) for paths in written.values())
-            self.status.emit(f"Wrote {count(files, 'comparison file')} in {folder}")
-
-        return self.runner.submit(
-            "export",
+        return write_folder(
+            self.runner,
             lambda: write_comparison(report, folder),
-            done,
-            lambda text: self.error.emit(f"Could not write the comparison: {text}"),
-            latest_only=False,
+            lambda files: f"Wrote {count(files, 'comparison file')} in {folder}",
+            "the comparison",
+            self.status.emit,
+            self.error.emit,
         )

@@ -24,10 +24,9 @@ the status line says which phases were kept.
 from __future__ import annotations
 
 import html
-import threading
 from pathlib import Path
 
-from PySide6.QtCore import QObject, QSettings, Qt, Signal
+from PySide6.QtCore import QSettings, Qt, Signal
 from PySide6.QtGui import QKeySequence, QShortcut
 from PySide6.QtWidgets import (
     QCheckBox,
@@ -38,7 +37,6 @@ from PySide6.QtWidgets import (
     QHeaderView,
     QLabel,
     QLineEdit,
-    QProgressBar,
     QPushButton,
     QSizePolicy,
     QSpinBox,
@@ -55,7 +53,7 @@ from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask
 from inspector.corpus.pruning import CAUTION, PRUNING_ORDERS
 from inspector.corpus.report import write_report
-from inspector.corpus.run import PHASES, CorpusCancelled, CorpusReport, PhaseProgress
+from inspector.corpus.run import PHASES, CorpusReport
 from inspector.corpus.settings import CorpusSettings
 from inspector.errors import HeadcountError
 from inspector.formatting import count
@@ -88,37 +86,20 @@ from ui.corpus.state import (
     with_choice,
     with_threshold,
 )
-from ui.widgets.export import ExportController, last_folder, remember_folder, slug
+from ui.widgets.export import ExportController, ask_folder, last_folder, remember_folder, slug, write_folder
 from ui.widgets.legend import ColourKey
 from ui.widgets.mask_files import MaskFiles
 from ui.widgets.matrix_map import MatrixMap
 from ui.widgets.panel import Panel, buddy_label, column, control_grid
+from ui.widgets.run_controls import CANCELLED, FAILED, RunControls, RunHooks
 from ui.widgets.tables import make_table as _table
 from ui.widgets.tables import table_cell as _cell
 from ui.widgets.worker import MODEL_LOCK, JobRunner
 
 CHANNEL = "corpus"
-CANCELLED = "cancelled"
-"""What the job returns when Cancel stopped it."""
 BAD_ROW_CHOICES = {"skip": "skip them and list them", "fail": "stop: the file must be clean"}
 MISFIRE_HEADER = ("Line", "Utterance", "Expected", "Predicted", "Confidence", "")
 EXPLAIN_COLUMN = 5
-
-
-BAR_STEPS = 1000
-"""Resolution of the phase bars (pruning steps advance by fractions)."""
-
-
-class _Progress(QObject):
-    """Carries progress from the worker thread to the page (queued signals)."""
-
-    step = Signal(int, object)
-    """run number, PhaseProgress."""
-    phase = Signal(int, str)
-    result = Signal(int, str, object)
-    """run number, phase that ended, the report so far."""
-    held = Signal(int, bool)
-    """run number, whether the run holds the window's model (no private copy)."""
 
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
@@ -200,16 +181,6 @@ class CorpusPage(QWidget):
         self.masks.status.connect(self.status.emit)
         self.masks.error.connect(self.error.emit)
         self._default_file = ""
-        self._stop = threading.Event()
-        self._run = 0
-        self._bridge = _Progress(self)
-        self._bridge.step.connect(self._step)
-        self._bridge.phase.connect(self._phase)
-        self._bridge.result.connect(self._partial)
-        self._bridge.held.connect(lambda run, held: run == self._run and self.holds_model.emit(held))
-        self._planned: list[str] = []
-        self._finished: list[str] = []
-        self._current: str | None = None
         self._waiting: dict[str, str] = {}
         """Phase -> what its views say while its results are not in the report (running, cancelled)."""
 
@@ -224,7 +195,6 @@ class CorpusPage(QWidget):
         self.data_note.setAccessibleName("What was read")
         self.data_note.setContentsMargins(8, 0, 8, 0)
         column(self, [self._request_box(), self.data_note, (self.tabs, 1)], margins=(6, 4, 6, 4), spacing=6)
-        runner.busy_changed.connect(self._busy_changed)
         export = QShortcut(QKeySequence("Ctrl+Shift+R"), self)
         export.setContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
         export.activated.connect(self.export_folder)
@@ -277,22 +247,23 @@ class CorpusPage(QWidget):
         self.every.setAccessibleName("Measure accuracy every")
         self.every.valueChanged.connect(self._units)
         self._units()
-        self.run_button = QPushButton("&Run", box)
+        self.controls = RunControls(
+            self.runner,
+            CHANNEL,
+            box,
+            run_text="&Run",
+            titles=PHASE_TITLES,
+            descriptions=PHASES,
+            step_text=phase_text,
+            ready=self._usable,
+        )
+        self.controls.result.connect(self._partial)
+        self.controls.held.connect(self.holds_model.emit)
+        self.controls.runner.busy_changed.connect(self._busy_changed)
+        self.run_button, self.cancel_button = self.controls.run_button, self.controls.cancel_button
+        self.phase_bars, self.phase_label = self.controls.phase_bars, self.controls.phase_label
         self.run_button.setDefault(True)
         self.run_button.clicked.connect(self.run)
-        self.cancel_button = QPushButton("&Cancel", box)
-        self.cancel_button.clicked.connect(self.cancel)
-        self.phase_bars: dict[str, QProgressBar] = {}
-        for name, title in PHASE_TITLES.items():
-            bar = QProgressBar(box)
-            bar.setAccessibleName(f"{title} progress")
-            bar.setTextVisible(True)
-            bar.setMinimumWidth(60)
-            bar.setFormat(f"{title}: not run")
-            bar.setValue(0)
-            self.phase_bars[name] = bar
-        self.phase_label = QLabel("", box)
-        self.phase_label.setWordWrap(True)
         self.export_button = QPushButton("E&xport run folder\u2026", box)
         self.export_button.setToolTip(
             "Write summary.json, heads.csv, similar_pairs.csv, pruning.csv, prune_mask.json and the figures "
@@ -340,10 +311,7 @@ class CorpusPage(QWidget):
         second.addWidget(self.export_button)
         third = QHBoxLayout()
         third.setSpacing(8)
-        third.addWidget(self.run_button)
-        third.addWidget(self.cancel_button)
-        for bar in self.phase_bars.values():
-            third.addWidget(bar, 1)
+        self.controls.add_to(third)
         third.addWidget(self.review_button)
         grid.addLayout(first, 0, 0)
         grid.addLayout(second, 1, 0)
@@ -642,7 +610,10 @@ class CorpusPage(QWidget):
 
     # -- running -----------------------------------------------------------------------------------
     def is_running(self) -> bool:
-        return self.runner.is_busy(CHANNEL)
+        return self.controls.is_running()
+
+    def _usable(self) -> bool:
+        return self.lm is not None and self.lm.has_prediction and bool(self.lm.labels)
 
     def run(self) -> None:
         """Start a corpus run in the background (ignored while one runs)."""
@@ -658,95 +629,70 @@ class CorpusPage(QWidget):
                 "Choose a data file for the corpus analysis (a .csv or .jsonl with text and label)"
             )
             return
-        self._stop = threading.Event()
-        self._run += 1
-        run, stop, bridge = self._run, self._stop, self._bridge
 
-        def compute(model: LoadedModel) -> object:
-            try:
-                return compute_corpus(
-                    model,
-                    request,
-                    should_stop=stop.is_set,
-                    on_phase=lambda name: bridge.phase.emit(run, name),
-                    on_step=lambda p: bridge.step.emit(run, p),
-                    on_result=lambda phase, report: bridge.result.emit(run, phase, report),
-                )
-            except CorpusCancelled:
-                return CANCELLED
+        def compute(model: LoadedModel, hooks: RunHooks) -> object:
+            return compute_corpus(
+                model,
+                request,
+                should_stop=hooks.should_stop,
+                on_phase=hooks.on_phase,
+                on_step=hooks.on_step,
+                on_result=hooks.on_result,
+            )
 
-        def job() -> object:
+        def job(hooks: RunHooks) -> object:
             with MODEL_LOCK:  # nothing else runs the model while it is copied
                 own = private_copy(lm) if copy_fits(lm) else None
             if own is not None:
-                return compute(own)
-            bridge.held.emit(run, True)
+                return compute(own, hooks)
+            hooks.on_held(True)
             with MODEL_LOCK:
-                return compute(lm)
+                return compute(lm, hooks)
 
-        self._planned, self._finished, self._current = planned_phases(request.settings), [], None
-        for name, bar in self.phase_bars.items():
-            bar.setVisible(name in self._planned)
-            bar.setRange(0, BAR_STEPS)
-            bar.setValue(0)
-            bar.setFormat(f"{PHASE_TITLES[name]}: waiting")
         if self.report is None:
             self.clear(
                 f"Running on {Path(request.path).name}: the evaluation appears here as soon as the scan ends"
             )
-        self.phase_label.setText(f"Reading {Path(request.path).name}\u2026")
-        self.runner.submit(CHANNEL, job, lambda result: self._done(lm, result), self._failed)
+        self.controls.start(
+            job,
+            lambda result: self._done(lm, result),
+            self._failed,
+            planned_phases(request.settings),
+            f"Reading {Path(request.path).name}\u2026",
+        )
         self._set_running(True)
 
     def cancel(self) -> None:
         """Ask the running analysis to stop before its next batch; the results shown stay."""
-        if self.is_running():
-            self._stop.set()
-            self.cancel_button.setEnabled(False)
-            self.phase_label.setText("Stopping after the current batch\u2026")
+        self.controls.cancel()
 
     def stop(self) -> None:
         """Stop a running analysis (model change, window closing)."""
-        self._stop.set()
+        self.controls.stop()
 
-    def _step(self, run: int, p: PhaseProgress) -> None:
-        if run != self._run:
-            return
-        bar = self.phase_bars[p.phase]
-        bar.setValue(int(BAR_STEPS * min(p.done / p.total, 1.0)) if p.total else 0)
-        bar.setFormat(phase_text(p))
-        bar.setToolTip(bar.format())
-        self._current = None if p.finished else p.phase
-
-    def _phase(self, run: int, name: str) -> None:
-        if run == self._run and not self._stop.is_set():
-            self.phase_label.setText(PHASES.get(name, name))
-
-    def _partial(self, run: int, phase: str, report: object) -> None:
+    def _partial(self, phase: str, report: object) -> None:
         """A phase ended: show everything found so far (the later phases say they are still running)."""
-        if run != self._run or not isinstance(report, CorpusReport):
+        if not isinstance(report, CorpusReport):
             return
-        self._finished.append(phase)
         self.show_report(
-            report, {p: f"{PHASE_WORDS[p].capitalize()}: still running\u2026" for p in self._pending()}
+            report,
+            {p: f"{PHASE_WORDS[p].capitalize()}: still running\u2026" for p in self.controls.pending()},
         )
-
-    def _pending(self) -> list[str]:
-        return [p for p in self._planned if p not in self._finished]
 
     def _done(self, lm: LoadedModel, result: object) -> None:
         self.holds_model.emit(False)
         if lm is not self.lm:
             return
         if result == CANCELLED:
-            had_previous = self.report is not None and not self._finished
-            self.phase_label.setText(cancel_text(self._finished, self._current, had_previous))
-            for name in self._pending():
-                self.phase_bars[name].setFormat(f"{PHASE_TITLES[name]}: cancelled")
-            if self._finished and self.report is not None:
+            finished = self.controls.finished
+            had_previous = self.report is not None and not finished
+            self.phase_label.setText(cancel_text(finished, self.controls.current, had_previous))
+            self.controls.mark_cancelled()
+            if finished and self.report is not None:
                 note = "{}: not finished, the run was cancelled"
                 self.show_report(
-                    self.report, {p: note.format(PHASE_WORDS[p].capitalize()) for p in self._pending()}
+                    self.report,
+                    {p: note.format(PHASE_WORDS[p].capitalize()) for p in self.controls.pending()},
                 )
             self.status.emit("Corpus run cancelled")
             self.finished.emit("cancelled")
@@ -759,7 +705,7 @@ class CorpusPage(QWidget):
 
     def _failed(self, text: str) -> None:
         self.holds_model.emit(False)
-        self.phase_label.setText("Failed \u2014 see the message above")
+        self.phase_label.setText(FAILED)
         self.data_note.setText(f"<b>Could not run:</b> {html.escape(text)}")
         self.error.emit(f"Corpus analysis: {text}")
         self.finished.emit("failed")
@@ -769,9 +715,7 @@ class CorpusPage(QWidget):
             self._set_running(busy)
 
     def _set_running(self, running: bool) -> None:
-        usable = self.lm is not None and self.lm.has_prediction and bool(self.lm.labels)
-        self.run_button.setEnabled(usable and not running)
-        self.cancel_button.setEnabled(running and not self._stop.is_set())
+        self.controls.refresh(running)
         self.export_button.setEnabled(self.report is not None)
         pruned = self.report is not None and self.report.pruning is not None
         self.save_mask_button.setEnabled(pruned)
@@ -1176,11 +1120,9 @@ class CorpusPage(QWidget):
         if self.report is None:
             self.error.emit("Nothing to export yet: run the corpus analysis first")
             return
-        start = str(last_folder(self.settings))
-        folder = QFileDialog.getExistingDirectory(self, "Write the corpus run into a folder", start)
-        if folder:
-            remember_folder(self.settings, Path(folder))
-            self.export_report(Path(folder))
+        folder = ask_folder(self, self.settings, "Write the corpus run into a folder")
+        if folder is not None:
+            self.export_report(folder)
 
     def choose_review_file(self) -> None:
         """Ask where to write the review report (.pdf or .html), then build it in the background."""
@@ -1220,7 +1162,7 @@ class CorpusPage(QWidget):
             raise ValueError("nothing to report: no corpus run yet")
         paper = self.exporter.paper() if self.exporter is not None else "a4"
         count = DEFAULT_EXPLAINED if explain is None else explain
-        bridge, run = self._bridge, self._run
+        say = self.controls.status_hook()
 
         def job() -> Path:
             with tempfile.TemporaryDirectory() as tmp, MODEL_LOCK:
@@ -1231,7 +1173,7 @@ class CorpusPage(QWidget):
                     lm=lm,
                     paper=paper,
                     explain=count,
-                    on_progress=lambda _d, _t, what: bridge.phase.emit(run, what),
+                    on_progress=lambda _d, _t, what: say(what),
                 )
 
         def done(written: object) -> None:
@@ -1252,17 +1194,13 @@ class CorpusPage(QWidget):
         report = self.report
         if report is None:
             raise ValueError("nothing to export: no corpus run yet")
-
-        def done(written: object) -> None:
-            count = sum(len(paths) for paths in written.values())
-            self.status.emit(f"Wrote the corpus report ({fmt.count(count, 'file')}) in {folder}")
-
-        return self.runner.submit(
-            "export",
+        return write_folder(
+            self.runner,
             lambda: write_report(report, folder),
-            done,
-            lambda text: self.error.emit(f"Could not write the corpus report: {text}"),
-            latest_only=False,
+            lambda files: f"Wrote the corpus report ({fmt.count(files, 'file')}) in {folder}",
+            "the corpus report",
+            self.status.emit,
+            self.error.emit,
         )
 
     def choose_mask_file(self) -> None:

@@ -115,13 +115,13 @@ PHASE_TITLES = {"scan": "Scan", "importance": "Importance", "pruning": "Pruning"
 PHASE_WORDS = {"scan": "the scan", "importance": "head importance", "pruning": "the pruning simulation"}
 
 
-def phase_text(p: PhaseProgress) -> str:
+def phase_text(p: PhaseProgress, titles: dict[str, str] = PHASE_TITLES) -> str:
     """A phase's progress in its own unit, with the time left at its pace so far.
 
     ``Scan: 256 of 513 utterances, about 12 s left``; ``Pruning: 3 of 36 steps``;
-    ``Importance: 513 utterances in 4.2 s`` when done.
+    ``Importance: 513 utterances in 4.2 s`` when done. ``titles`` names the phases.
     """
-    title = PHASE_TITLES.get(p.phase, p.phase)
+    title = titles.get(p.phase, p.phase)
     total = int(round(p.total))
     if p.finished and total:
         return f"{title}: {fmt.count(total, p.unit)} in {fmt.duration(p.elapsed)}"

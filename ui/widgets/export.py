@@ -75,6 +75,37 @@ def remember_folder(settings: QSettings, path: Path) -> None:
     settings.setValue(FOLDER_KEY, str(path if path.is_dir() else path.parent))
 
 
+def ask_folder(parent: QWidget, settings: QSettings, title: str) -> Path | None:
+    """Ask for a folder, starting in the last folder used; remember the choice. None when cancelled."""
+    folder = QFileDialog.getExistingDirectory(parent, title, str(last_folder(settings)))
+    if not folder:
+        return None
+    remember_folder(settings, Path(folder))
+    return Path(folder)
+
+
+def write_folder(
+    runner: JobRunner,
+    write: Callable[[], dict[str, list[Path]]],
+    said: Callable[[int], str],
+    what: str,
+    status: Callable[[str], None],
+    error: Callable[[str], None],
+) -> int:
+    """Write a run's files (``write()``: name -> written paths) on the background "export" channel.
+
+    When done, ``status`` gets ``said(number of files)``; on failure ``error`` gets
+    ``Could not write <what>: <reason>``. Returns the job number.
+    """
+
+    def done(written: object) -> None:
+        status(said(sum(len(paths) for paths in written.values())))
+
+    return runner.submit(
+        "export", write, done, lambda text: error(f"Could not write {what}: {text}"), latest_only=False
+    )
+
+
 def run_export(job: ExportJob, path: Path) -> list[Path]:
     """Render and write ``job`` to ``path`` (+ CSV beside it); nothing partial is left on failure."""
     fig = job.make_figure()
