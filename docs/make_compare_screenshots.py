@@ -46,7 +46,8 @@ def main() -> int:
     view = window.compare_view
     window.show_page(window.corpus_page)
     window.corpus_page.tabs.setCurrentWidget(view)
-    window.corpus_page.path_edit.setText(str(SAMPLE_EVAL))
+    os.chdir(ROOT)  # the data-file field shows a path relative to the repository, not this checkout's location
+    window.corpus_page.path_edit.setText(str(SAMPLE_EVAL.relative_to(ROOT)))
     view.run()
     wait_until(app, lambda: view.report is not None and not window.is_busy(), timeout=600.0)
     window.grab().save(str(DOCS / "compare_corpus.png"))

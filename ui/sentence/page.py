@@ -47,7 +47,7 @@ from ui.sentence.state import (
     view_matrices,
 )
 from ui.sentence.token_arcs import TokenArcs
-from ui.widgets.colormap import accent, dim_text
+from ui.widgets.colormap import dim_text
 from ui.widgets.legend import ColourKey, MeterKey
 from ui.widgets.mask_files import MaskFiles
 from ui.widgets.panel import ElidedLabel, Panel, column
@@ -593,15 +593,16 @@ class SentencePageWidget(QWidget):
         self.stale_note.raise_()
 
     def _style_stale_note(self) -> None:
-        colour = accent(self.palette()).name()
+        colour = dim_text(self.palette(), 0.7).name()  # a notice, not the selection: never the accent
         self.stale_note.setStyleSheet(
-            f"QLabel {{ border: 1px solid {colour}; border-left: 5px solid {colour}; padding: 4px 8px; }}"
+            f"QLabel {{ border: 1px solid {colour}; border-left: 5px solid {colour}; padding: 4px 8px; "
+            "background-color: palette(window); }"
         )
 
     def _place_stale_note(self) -> None:
         area = self.views.geometry()
         width = min(area.width() - 40, 720)
-        height = self.stale_note.heightForWidth(width)
+        height = self.stale_note.heightForWidth(width) + 10  # + the style sheet's padding and borders
         self.stale_note.setGeometry(area.x() + (area.width() - width) // 2, area.y() + 28, width, height)
 
     def resizeEvent(self, event: object) -> None:
