@@ -46,7 +46,8 @@ def main() -> int:
     view = window.compare_view
     window.show_page(window.corpus_page)
     window.corpus_page.tabs.setCurrentWidget(view)
-    os.chdir(ROOT)  # the data-file field shows a path relative to the repository, not this checkout's location
+    # the data-file field shows a path relative to the repository, not where this checkout lives
+    os.chdir(ROOT)
     window.corpus_page.path_edit.setText(str(SAMPLE_EVAL.relative_to(ROOT)))
     view.run()
     wait_until(app, lambda: view.report is not None and not window.is_busy(), timeout=600.0)
