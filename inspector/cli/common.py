@@ -150,6 +150,8 @@ class ProgressBar:
     def __init__(self, enabled: bool) -> None:
         self.enabled = enabled
         self.bar = None
+        self.name = "scan"
+        """The phase named on the bar (the first phase starts before the bar exists)."""
 
     def __enter__(self) -> ProgressBar:
         return self
@@ -158,6 +160,7 @@ class ProgressBar:
         self.close()
 
     def phase(self, name: str) -> None:
+        self.name = name
         if self.bar is not None:
             self.bar.set_description(name)
 
@@ -167,7 +170,7 @@ class ProgressBar:
         if self.bar is None:
             from tqdm import tqdm
 
-            self.bar = tqdm(total=total, unit="batch", file=sys.stderr, desc="scan", leave=False)
+            self.bar = tqdm(total=total, unit="batch", file=sys.stderr, desc=self.name, leave=False)
         self.bar.total = total
         self.bar.update(done - self.bar.n)
 
