@@ -650,9 +650,10 @@ class HeadGrid(HoverView):
                 is_sel = head == sel_head and block == sel_block
                 p.setFont(bold if is_sel else self.font())
                 p.setPen(accent(pal) if is_sel else dim)
+                # centred on the column, never clipped: narrow columns are named every few heads
                 p.drawText(
                     QRect(r.x() - 8, 0, r.width() + 16, geo.top - 2),
-                    Qt.AlignmentFlag.AlignHCenter | Qt.AlignmentFlag.AlignBottom,
+                    Qt.AlignmentFlag.AlignHCenter | Qt.AlignmentFlag.AlignBottom | Qt.TextFlag.TextDontClip,
                     fmt.head_tick(head),
                 )
         names_w = geo.aisle - BLOCK_SPACE - 6  # the block's layer names end 6 pixels before its cells
