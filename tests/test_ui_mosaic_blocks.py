@@ -21,9 +21,8 @@ from PySide6.QtCore import QRect, QSettings, Qt  # noqa: E402
 from PySide6.QtGui import QColor, QImage, QPalette  # noqa: E402
 
 from inspector import formatting as fmt  # noqa: E402
-from inspector.checkpoint.capture import encode  # noqa: E402
-from tests.corpus_models import UTTERANCES  # noqa: E402
 from tests.families import build_bert  # noqa: E402
+from tests.test_ui_screens import text_with_tokens  # noqa: E402
 
 WAIT_MS = 60_000
 LAPTOP = (1366, 768)
@@ -58,19 +57,6 @@ def model_dirs(tmp_path_factory, minilm_dir) -> dict[tuple[int, int], Path]:
     return {s: _build(root / f"{s[0]}x{s[1]}", minilm_dir, *s) for s in shapes}
 
 
-def _message(lm, n: int = 128) -> str:
-    """The invented ferry utterances run together, as many words as fit in ``n`` tokens."""
-    words = " ".join(text for text, _ in UTTERANCES * 20).split()
-    lo, hi = 1, len(words)
-    while lo < hi:
-        mid = (lo + hi + 1) // 2
-        if len(encode(lm, [" ".join(words[:mid])]).tokens[0]) <= n:
-            lo = mid
-        else:
-            hi = mid - 1
-    return " ".join(words[:lo])
-
-
 def _open(qtbot, tmp_path: Path, model: Path):
     """The window at 1366 x 768 with ``model`` open and a ~128-token message analysed."""
     from ui.main_window import MainWindow
@@ -81,7 +67,7 @@ def _open(qtbot, tmp_path: Path, model: Path):
     win.show()
     win.open_model(model)
     qtbot.waitUntil(lambda: win.lm is not None and win.sentence_page.state.ready, timeout=WAIT_MS)
-    text = _message(win.lm)
+    text = text_with_tokens(win.lm, 128)
     win.open_sentence(text, None)
     page = win.sentence_page
     qtbot.waitUntil(lambda: page.state.ready and page.state.analysis.text == text, timeout=WAIT_MS)
