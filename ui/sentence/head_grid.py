@@ -1,10 +1,17 @@
 """The head mosaic: every head's attention for the sentence, one row per layer.
 
-Drawing path (fast from 4 x 4 to 24 x 16 heads): all cells are resampled to
-the on-screen cell size and coloured in numpy with one lookup-table pass,
-assembled into a single RGBA image with the gaps and metric meters already in
-place, wrapped in one QImage and cached. A repaint is then one ``drawImage``
-plus the layer/head labels and the selection frame.
+Layout (readable from 4 x 4 to 24 x 16 heads): the layers are dealt into one or
+more side-by-side blocks of consecutive layers (``L0``-``L11`` | ``L12``-``L23``),
+each with its own layer names on the left and head names on top. The number of
+blocks is the one that gives the largest cells for the widget's size
+(:func:`plan_blocks`): a tall model in a short panel wraps, a small one stays in
+one block.
+
+Drawing path (fast at every size): all cells are resampled to the on-screen cell
+size and coloured in numpy with one lookup-table pass, assembled into a single
+RGBA image with the gaps, block aisles and metric meters already in place,
+wrapped in one QImage and cached. A repaint is then one ``drawImage`` plus the
+layer/head labels and the selection frame.
 """
 
 from __future__ import annotations
@@ -23,6 +30,11 @@ from ui.widgets.hover_view import HoverView
 from ui.widgets.legend import meter_colours
 
 MAX_CELL = 150
+BLOCK_SPACE = 8
+"""Pixels between one block's last column of cells and the next block's layer names."""
+READABLE_CELL = 12
+"""Cells smaller than this get the thin meter and 2-pixel gaps (:func:`fit_cells`); the page widens
+the mosaic (up to 60% of its row) rather than draw them (common practice, no source)."""
 NUMBER_LANE = 17
 """Height of the lane under a cell when the metric value is printed there."""
 BAR_LANE = 6
@@ -32,7 +44,11 @@ THIN_LANE = 4
 
 @dataclass(frozen=True)
 class GridGeometry:
-    """Where the cells sit inside the widget."""
+    """Where the cells sit inside the widget.
+
+    Layer ``l`` is row ``l % rows`` of block ``l // rows``; the blocks stand side by
+    side, ``aisle`` pixels apart (room for the next block's layer names).
+    """
 
     left: int
     top: int
@@ -41,6 +57,10 @@ class GridGeometry:
     lane: int
     layers: int
     heads: int
+    rows: int = 0
+    """Layers per block (0: all of them, one block)."""
+    aisle: int = 0
+    """Pixels between one block's last cell pitch and the next block's first cell."""
 
     @property
     def pitch_x(self) -> int:
@@ -50,8 +70,37 @@ class GridGeometry:
     def pitch_y(self) -> int:
         return self.cell + self.lane + self.gap
 
+    @property
+    def block_rows(self) -> int:
+        return self.rows if 0 < self.rows < self.layers else self.layers
+
+    @property
+    def blocks(self) -> int:
+        return -(-self.layers // max(self.block_rows, 1))
+
+    @property
+    def block_pitch(self) -> int:
+        """From one block's first cell to the next block's first cell."""
+        return self.heads * self.pitch_x + self.aisle
+
+    def block_left(self, block: int) -> int:
+        """The x of a block's first column of cells."""
+        return self.left + block * self.block_pitch
+
+    def block_layers(self, block: int) -> range:
+        first = block * self.block_rows
+        return range(first, min(first + self.block_rows, self.layers))
+
+    def image_size(self) -> tuple[int, int]:
+        """(width, height) of the cells, gaps, lanes and aisles from the first cell to the last."""
+        width = (self.blocks - 1) * self.block_pitch + self.heads * self.pitch_x - self.gap
+        return width, self.block_rows * self.pitch_y - self.gap
+
     def cell_rect(self, layer: int, head: int) -> QRect:
-        return QRect(self.left + head * self.pitch_x, self.top + layer * self.pitch_y, self.cell, self.cell)
+        block, row = divmod(layer, self.block_rows)
+        return QRect(
+            self.block_left(block) + head * self.pitch_x, self.top + row * self.pitch_y, self.cell, self.cell
+        )
 
     def slot_rect(self, layer: int, head: int) -> QRect:
         """The cell plus its meter lane."""
@@ -59,13 +108,16 @@ class GridGeometry:
         return QRect(r.x(), r.y(), self.cell, self.cell + self.lane)
 
     def cell_at(self, x: int, y: int) -> tuple[int, int] | None:
+        """(layer, head) of the cell or meter lane under the point, or None (gaps, aisles, labels)."""
         cx, cy = x - self.left, y - self.top
         if cx < 0 or cy < 0:
             return None
-        head, layer = cx // self.pitch_x, cy // self.pitch_y
-        if head >= self.heads or layer >= self.layers:
+        block, within = divmod(cx, self.block_pitch)
+        head, row = within // self.pitch_x, cy // self.pitch_y
+        layer = block * self.block_rows + row
+        if head >= self.heads or row >= self.block_rows or layer >= self.layers:
             return None
-        if cx - head * self.pitch_x >= self.cell or cy - layer * self.pitch_y >= self.cell + self.lane:
+        if within - head * self.pitch_x >= self.cell or cy - row * self.pitch_y >= self.cell + self.lane:
             return None
         return int(layer), int(head)
 
@@ -155,26 +207,38 @@ def mosaic_rgba(
 
     Returns
     -------
-    ndarray of shape (layers * pitch_y, heads * pitch_x, 4), uint8
+    ndarray of shape (height, width, 4), uint8
+        ``geometry.image_size()`` plus one trailing gap on each axis: the blocks of
+        ``geometry.block_rows`` layers side by side, ``geometry.aisle`` pixels apart,
+        the cell of (layer, head) at ``geometry.cell_rect(layer, head)`` less
+        ``(geometry.left, geometry.top)``.
     """
     c, g, lane = geometry.cell, geometry.gap, geometry.lane
     if codes is None:
         codes = head_codes(attention, c, per_head=per_head)
     L, H = codes.shape[:2]
+    rows, blocks = geometry.block_rows, geometry.blocks
     cells = LUT32[codes]  # one packed RGBA word per pixel
-    out = np.empty((L, c + lane + g, H, c + g), dtype=np.uint32)
+    # [block, row in block, y in slot, head, x in slot]; layers past the last one stay background
+    out = np.empty((blocks * rows, c + lane + g, H, c + g), dtype=np.uint32)
     out[...] = _pack(background)
-    out[:, :c, :, :c] = cells.transpose(0, 2, 1, 3)
+    out[:L, :c, :, :c] = cells.transpose(0, 2, 1, 3)
     if meter is not None and lane > 0:
         bar_top, bar_h = (c + 1, 2) if lane <= THIN_LANE else (c + 2, min(lane - 2, 4))
         filled = np.arange(c)[None, None, :] < np.rint(np.clip(meter, 0, 1) * c)[:, :, None]  # [L, H, c]
         colours = np.where(filled, _pack(fill), _pack(track))
-        out[:, bar_top : bar_top + bar_h, :, :c] = colours[:, None]
-    return (
-        out.reshape(L * (c + lane + g), H * (c + g))
-        .view(np.uint8)
-        .reshape(L * (c + lane + g), H * (c + g), 4)
-    )
+        out[:L, bar_top : bar_top + bar_h, :, :c] = colours[:, None]
+    height, row_width = rows * (c + lane + g), H * (c + g)
+    if blocks == 1:
+        flat = out.reshape(height, row_width)
+    else:
+        pitch = geometry.block_pitch
+        flat = np.empty((height, blocks, pitch), dtype=np.uint32)
+        flat[...] = _pack(background)
+        flat[:, :, :row_width] = out.reshape(blocks, height, row_width).transpose(1, 0, 2)
+        flat = flat.reshape(height, blocks * pitch)[:, : (blocks - 1) * pitch + row_width]
+    flat = np.ascontiguousarray(flat)
+    return flat.view(np.uint8).reshape(flat.shape[0], flat.shape[1], 4)
 
 
 LUT32: np.ndarray = LUT.view(np.uint32).reshape(256)
@@ -207,10 +271,39 @@ def fit_cells(avail_w: float, avail_h: float, layers: int, heads: int) -> tuple[
     if cell < 46:
         lane = BAR_LANE
         cell = fit(gap, lane)
-    if cell < 12:
+    if cell < READABLE_CELL:
         gap, lane = 2, THIN_LANE
         cell = fit(gap, lane)
     return int(np.clip(cell, 2, MAX_CELL)), gap, lane
+
+
+def plan_blocks(
+    avail_w: float, avail_h: float, layers: int, heads: int, aisle: int
+) -> tuple[int, int, int, int]:
+    """(rows, cell, gap, lane): the layers per block that give the largest cells, and those cells.
+
+    Every way of dealing ``layers`` into blocks of ``rows`` consecutive layers, set side by
+    side, is sized with :func:`fit_cells` (``blocks * heads`` columns of cells in the width
+    left after ``blocks - 1`` aisles, ``rows`` rows in the height); the largest cell wins,
+    and a tie goes to fewer blocks (one block when it is as good).
+
+    Parameters
+    ----------
+    avail_w, avail_h : float
+        Pixels for the cells: the width after the first block's layer names, the height
+        after the head names.
+    layers, heads : int
+        The model's shape.
+    aisle : int
+        Pixels between two blocks (the next block's layer names and a margin).
+    """
+    best: tuple[int, int, int, int] | None = None
+    for rows in sorted({-(-layers // blocks) for blocks in range(1, layers + 1)}, reverse=True):
+        blocks = -(-layers // rows)
+        cell, gap, lane = fit_cells(avail_w - (blocks - 1) * aisle, avail_h, rows, blocks * heads)
+        if best is None or cell > best[1]:
+            best = (rows, cell, gap, lane)
+    return best
 
 
 class HeadGrid(HoverView):
@@ -345,24 +438,35 @@ class HeadGrid(HoverView):
         names = [self.layer_label(layer) for layer in range(layers)] or [fmt.layer_name(0)]
         return max(fm.horizontalAdvance(name) for name in names) + 10, fm.height() + 4
 
-    def width_for_height(self, height: int, layers: int, heads: int) -> int:
-        """The width at which ``layers`` x ``heads`` cells are as large as ``height`` allows."""
+    def layout_for(self, width: int, height: int, layers: int, heads: int) -> GridGeometry:
+        """The geometry of ``layers`` x ``heads`` cells in a widget of this size (blocks chosen, centred)."""
         left, top = self._margins(layers)
-        cell, gap, _lane = fit_cells(float("inf"), height - top - 4, layers, heads)
-        return left + heads * (cell + gap) + 4
+        aisle = left + BLOCK_SPACE
+        avail_w, avail_h = width - left - 4, height - top - 4
+        rows, cell, gap, lane = plan_blocks(avail_w, avail_h, layers, heads, aisle)
+        geo = GridGeometry(0, 0, cell, gap, lane, layers, heads, rows, aisle)
+        used_w, used_h = geo.image_size()
+        left += max((avail_w - used_w) // 2, 0)
+        top += max((avail_h - used_h) // 2, 0)
+        return GridGeometry(left, top, cell, gap, lane, layers, heads, rows, aisle)
+
+    def width_for_height(self, height: int, layers: int, heads: int, max_width: int) -> int:
+        """The narrowest width, up to ``max_width``, at which the cells are as large as at ``max_width``.
+
+        A mosaic that is bound by the height in one block needs no more width than its
+        cells use; one that wraps into blocks grows with the width, up to ``max_width``.
+        """
+        geo = self.layout_for(max_width, height, layers, heads)
+        left, _top = self._margins(layers)
+        # every block's cell pitches (trailing gap included) and the aisles between them
+        used_w = geo.blocks * geo.block_pitch - geo.aisle
+        return int(min(left + used_w + 4, max_width))
 
     def grid_geometry(self) -> GridGeometry | None:
         if self.attention is None:
             return None
         L, H = self.attention.shape[:2]
-        left, top = self._margins(L)
-        avail_w, avail_h = self.width() - left - 4, self.height() - top - 4
-        cell, gap, lane = fit_cells(avail_w, avail_h, L, H)
-        used_w = H * (cell + gap) - gap
-        used_h = L * (cell + lane + gap) - gap
-        left += max((avail_w - used_w) // 2, 0)
-        top += max((avail_h - used_h) // 2, 0)
-        return GridGeometry(left, top, cell, gap, lane, L, H)
+        return self.layout_for(self.width(), self.height(), L, H)
 
     def layer_label(self, layer: int) -> str:
         """``L3``, or ``L3 ±64`` for a layer that attends within a local window of 64 tokens each side."""
@@ -407,7 +511,9 @@ class HeadGrid(HoverView):
         geo = self.grid_geometry()
         if geo is None:
             return [self.placeholder()]
-        ticks = [fmt.head_tick(h) for h in range(geo.heads)] + [fmt.layer_name(l) for l in range(geo.layers)]
+        ticks = [fmt.head_tick(h) for h in self.drawn_ticks(geo)] + [
+            self.layer_label(l) for l in self.drawn_layer_names(geo)
+        ]
         numbers = self.number_texts() if geo.lane == NUMBER_LANE and self.metric_values is not None else []
         off = ["off"] * len(self._off) if geo.cell >= 30 else []
         return ticks + [text for row in numbers for text in row if text] + off
@@ -454,9 +560,9 @@ class HeadGrid(HoverView):
         p.setPen(self.palette().color(QPalette.ColorRole.WindowText))
         for layer, row in enumerate(self.number_texts()):
             for head, text in enumerate(row):
-                x, y = head * geo.pitch_x, layer * geo.pitch_y + geo.cell + 6
+                r = geo.cell_rect(layer, head).translated(-geo.left, -geo.top)
                 p.drawText(
-                    QRect(x, y, geo.cell, geo.lane - 6),
+                    QRect(r.x(), r.y() + geo.cell + 6, geo.cell, geo.lane - 6),
                     Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
                     text,
                 )
@@ -504,37 +610,61 @@ class HeadGrid(HoverView):
                 p.drawText(box, Qt.AlignmentFlag.AlignCenter, "off")
         p.restore()
 
+    def _tick_heads(self, geo: GridGeometry) -> list[int]:
+        """The heads named on top of a block: every few heads when the cells are narrow, and the selected one."""
+        sel_head = self._selected[1]
+        step = max(
+            1, int(np.ceil((self.fontMetrics().horizontalAdvance(fmt.head_tick(10)) + 4) / geo.pitch_x))
+        )
+        return [h for h in range(geo.heads) if h == sel_head or (h % step == 0 and abs(h - sel_head) >= step)]
+
+    def drawn_ticks(self, geo: GridGeometry) -> list[int]:
+        """The heads named on top of the mosaic, block after block (the same ones over every block)."""
+        return self._tick_heads(geo) * geo.blocks
+
+    def drawn_layer_names(self, geo: GridGeometry) -> list[int]:
+        """The layers named left of their block: every few rows when the rows are thin, and the selected one."""
+        sel_layer = self._selected[0]
+        step = max(1, int(np.ceil(self.fontMetrics().height() / geo.pitch_y)))
+        out = []
+        for block in range(geo.blocks):
+            layers = geo.block_layers(block)
+            for layer in layers:
+                near = sel_layer in layers and abs(layer - sel_layer) < step
+                if layer == sel_layer or ((layer - layers.start) % step == 0 and not near):
+                    out.append(layer)
+        return out
+
     def _draw_labels(self, p: QPainter, geo: GridGeometry) -> None:
         pal = self.palette()
         dim = dim_text(pal)
         sel_layer, sel_head = self._selected
+        sel_block = sel_layer // geo.block_rows
         bold = QFont(self.font())
         bold.setBold(True)
         fm = self.fontMetrics()
-        step = max(1, int(np.ceil((fm.horizontalAdvance(fmt.head_tick(10)) + 4) / geo.pitch_x)))
-        for head in range(geo.heads):
-            if head != sel_head and (head % step or abs(head - sel_head) < step):
-                continue
-            r = geo.cell_rect(0, head)
-            is_sel = head == sel_head
-            p.setFont(bold if is_sel else self.font())
-            p.setPen(accent(pal) if is_sel else dim)
-            p.drawText(
-                QRect(r.x() - 8, 0, r.width() + 16, geo.top - 2),
-                Qt.AlignmentFlag.AlignHCenter | Qt.AlignmentFlag.AlignBottom,
-                fmt.head_tick(head),
-            )
-        row_step = max(1, int(np.ceil((fm.height()) / geo.pitch_y)))
-        for layer in range(geo.layers):
-            if layer != sel_layer and (layer % row_step or abs(layer - sel_layer) < row_step):
-                continue
+        heads = self._tick_heads(geo)
+        for block in range(geo.blocks):
+            for head in heads:
+                r = geo.cell_rect(geo.block_layers(block).start, head)
+                is_sel = head == sel_head and block == sel_block
+                p.setFont(bold if is_sel else self.font())
+                p.setPen(accent(pal) if is_sel else dim)
+                # centred on the column, never clipped: narrow columns are named every few heads
+                p.drawText(
+                    QRect(r.x() - 8, 0, r.width() + 16, geo.top - 2),
+                    Qt.AlignmentFlag.AlignHCenter | Qt.AlignmentFlag.AlignBottom | Qt.TextFlag.TextDontClip,
+                    fmt.head_tick(head),
+                )
+        names_w = geo.aisle - BLOCK_SPACE - 6  # the block's layer names end 6 pixels before its cells
+        for layer in self.drawn_layer_names(geo):
             r = geo.cell_rect(layer, 0)
             is_sel = layer == sel_layer
             p.setFont(bold if is_sel else self.font())
             p.setPen(accent(pal) if is_sel else dim)
             # A line-high box centred on the cell, never clipped: cells may be thinner than the text.
             p.drawText(
-                QRect(0, r.center().y() - fm.height() // 2, geo.left - 6, fm.height()),
+                QRect(r.x() - 6 - names_w, r.center().y() - fm.height() // 2, names_w, fm.height()),
                 Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter | Qt.TextFlag.TextDontClip,
                 self.layer_label(layer),
             )

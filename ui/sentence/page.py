@@ -34,7 +34,7 @@ from inspector.measures.analysis import Prediction, SentenceAnalysis
 from inspector.measures.metrics import METRIC_LABELS, METRIC_NAMES
 from ui.sentence.bar import SentenceBar
 from ui.sentence.close_up import CloseUp
-from ui.sentence.head_grid import HeadGrid, head_codes
+from ui.sentence.head_grid import READABLE_CELL, HeadGrid, head_codes
 from ui.sentence.pair_state import PairState
 from ui.sentence.relevance_band import BandScroll, RelevanceBand
 from ui.sentence.second_model import SecondModelStrip
@@ -371,6 +371,8 @@ class SentencePageWidget(QWidget):
             self.grid_captions.append(caption)
             row.addLayout(column_layout([caption, (grid, 1)]), 1)
         self.grid_b.hide()
+        row.setStretch(1, 0)  # B's column, empty while B is closed, takes no share of the width
+        self._mosaic_row = row
         outer = QVBoxLayout(body)
         outer.setContentsMargins(0, 0, 0, 0)
         outer.setSpacing(4)
@@ -669,6 +671,7 @@ class SentencePageWidget(QWidget):
         on = bool(name_b)
         self.second.setVisible(on)
         self.grid_b.setVisible(on)
+        self._mosaic_row.setStretch(1, 1 if on else 0)
         for caption in self.grid_captions:
             caption.setVisible(on)
         self.grid.set_overlay(None)
@@ -718,8 +721,10 @@ class SentencePageWidget(QWidget):
     def balance_mosaic(self) -> None:
         """Give the mosaic the width its cells use at the current height (once per model shape).
 
-        A 12 x 12 mosaic is height-bound on a laptop screen: width beyond its square
-        cells is better spent on the close-up. Kept between a third and 60% of the row.
+        Up to an even split, the mosaic takes the narrowest width that gives its cells
+        their largest size (a mosaic bound by the height needs no more: the rest is better
+        spent on the close-up); up to 60% of the row when its cells would otherwise be
+        smaller than ``READABLE_CELL``. Never less than 40%, or than its controls need.
         """
         a = self.state.analysis
         if a is None or self._balanced_for == (a.num_layers, a.num_heads):
@@ -728,8 +733,19 @@ class SentencePageWidget(QWidget):
         if total <= 0 or self.grid.height() <= 0:
             return
         self._balanced_for = (a.num_layers, a.num_heads)
-        extra = self.mosaic_panel.width() - self.grid.width()
-        needed = self.grid.width_for_height(self.grid.height(), a.num_layers, a.num_heads) + extra
+        grids = [g for g in (self.grid, self.grid_b) if g.isVisible()] or [self.grid]
+        extra = self.mosaic_panel.width() - sum(g.width() for g in grids)
+        shape = (self.grid.height(), a.num_layers, a.num_heads)
+
+        def width_at_most(share: float) -> tuple[int, int]:
+            """(panel width, cell size) of the mosaic given at most ``share`` of the row."""
+            per_grid = int((share * total - extra) / len(grids))
+            grid_w = self.grid.width_for_height(*shape, per_grid)
+            return grid_w * len(grids) + extra, self.grid.layout_for(grid_w, *shape).cell
+
+        needed, cell = width_at_most(0.5)
+        if cell < READABLE_CELL:
+            needed = width_at_most(0.6)[0]
         sub = self.mosaic_panel.subtitle
         header = (
             self.mosaic_panel.minimumSizeHint().width()
