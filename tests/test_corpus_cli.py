@@ -193,3 +193,27 @@ def test_run_api_reports_progress_and_can_be_cancelled(files):
     with pytest.raises(CorpusCancelled):
         run_corpus(lm, data, settings, should_stop=stop)
     assert len(calls) == 3
+
+
+def test_cli_progress_has_one_bar_per_phase_in_its_own_unit(files, capsys):
+    """Without --quiet, stderr shows a scan bar and an importance bar counting utterances and a pruning
+    bar counting steps, each ending at its own total (not one batch count across phases).
+
+    Reference: the run's own record in summary.json: the utterances read (``data.utterances``, the file's
+    rows less the unknown-label one) and the pruning steps (``pruning.measured_steps``: one accuracy
+    measurement per measured step and order after the unpruned start, whose accuracy the scan already has).
+    """
+    out = files["root"] / "out_bars"
+    argv = ["corpus", str(files["model"]), str(files["csv"]), "--out", str(out), "--batch-size", "4"]
+    assert main([*argv, "--prune-every", "2"]) == 0
+    err = capsys.readouterr().err.replace("\r", "\n")
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    rows = summary["data"]["utterances"]
+    assert rows == len(UTTERANCES)
+    finals = {line.split(":")[0]: line for line in err.splitlines() if "100%" in line}
+    assert set(finals) == {"scan", "importance", "pruning"}
+    assert f"{rows}/{rows} utterances" in finals["scan"]
+    assert f"{rows}/{rows} utterances" in finals["importance"]
+    steps = sum(len(s) - 1 for s in summary["pruning"]["measured_steps"].values())
+    assert f"/{steps} steps" in finals["pruning"]
+    assert "batch" not in err

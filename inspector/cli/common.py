@@ -141,17 +141,18 @@ def add_report_options(p: argparse.ArgumentParser, json_help: str) -> None:
 
 
 class ProgressBar:
-    """A tqdm bar on stderr over the batches of a run, relabelled per phase (nothing when disabled).
+    """One tqdm bar on stderr per phase of a run, counting that phase's own unit (nothing when disabled).
 
-    Use it as a context manager (it closes itself) and pass :meth:`progress` as ``on_progress`` and
-    :meth:`phase` as ``on_phase``.
+    Pass :meth:`step` as a run's ``on_step``: each phase (scan, importance, pruning,
+    comparison) gets its own bar in utterances or pruning steps, with tqdm's estimate
+    of the time left, instead of one batch count running across phases. Use it as a
+    context manager (it closes the last bar).
     """
 
     def __init__(self, enabled: bool) -> None:
         self.enabled = enabled
         self.bar = None
-        self.name = "scan"
-        """The phase named on the bar (the first phase starts before the bar exists)."""
+        self.name = ""
 
     def __enter__(self) -> ProgressBar:
         return self
@@ -159,24 +160,33 @@ class ProgressBar:
     def __exit__(self, *_exc: object) -> None:
         self.close()
 
-    def phase(self, name: str) -> None:
-        self.name = name
-        if self.bar is not None:
-            self.bar.set_description(name)
-
-    def progress(self, done: int, total: int) -> None:
+    def step(self, p) -> None:
+        """Show ``p`` (an :class:`inspector.corpus.run.PhaseProgress`) on its phase's bar."""
         if not self.enabled:
             return
-        if self.bar is None:
+        if p.phase != self.name or self.bar is None:
             from tqdm import tqdm
 
-            self.bar = tqdm(total=total, unit="batch", file=sys.stderr, desc=self.name, leave=False)
-        self.bar.total = total
-        self.bar.update(done - self.bar.n)
+            self.close()
+            self.name = p.phase
+            digits = (
+                0 if float(p.total).is_integer() and p.unit != "step" else 1
+            )  # pruning steps run in fractions
+            shape = f"{{desc}}: {{percentage:3.0f}}%|{{bar}}| {{n:.{digits}f}}/{{total:.0f}} {p.unit}s"
+            self.bar = tqdm(
+                total=p.total,
+                file=sys.stderr,
+                desc=p.phase,
+                leave=True,
+                bar_format=shape + " [{elapsed}<{remaining}]",
+            )
+        self.bar.total = p.total
+        self.bar.update(round(p.done - self.bar.n, 6))
 
     def close(self) -> None:
         if self.bar is not None:
             self.bar.close()
+            self.bar = None
 
 
 def print_json(doc: object, **options: object) -> None:

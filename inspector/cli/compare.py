@@ -163,7 +163,7 @@ def cmd_compare(args: argparse.Namespace) -> int:
         on_bad_row=args.on_bad_row,
     )
     with ProgressBar(enabled=not args.quiet) as bar:
-        report = compare_corpus(lm_a, lm_b, data, settings, on_progress=bar.progress, on_phase=bar.phase)
+        report = compare_corpus(lm_a, lm_b, data, settings, on_step=bar.step)
     write_comparison(report, args.out, figures=not args.no_figures)
     doc = comparison_dict(report)
     if args.json:

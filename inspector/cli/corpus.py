@@ -151,7 +151,7 @@ def cmd_corpus(args: argparse.Namespace) -> int:
         on_bad_row=args.on_bad_row,
     )
     with ProgressBar(enabled=not args.quiet) as bar:
-        report = run_corpus(lm, data, settings, on_progress=bar.progress, on_phase=bar.phase)
+        report = run_corpus(lm, data, settings, on_step=bar.step)
     write_report(report, args.out, figures=not args.no_figures)
     summary = summary_dict(report)
     if args.json:
