@@ -181,7 +181,9 @@ class ProgressBar:
                 bar_format=shape + " [{elapsed}<{remaining}]",
             )
         self.bar.total = p.total
-        self.bar.update(round(p.done - self.bar.n, 6))
+        # Set the count rather than adding increments: summed fractional steps drift past the total.
+        self.bar.n = min(p.done, p.total)
+        self.bar.update(0)  # redraws at most every tqdm mininterval
 
     def close(self) -> None:
         if self.bar is not None:
