@@ -321,3 +321,30 @@ def test_dropping_a_folder_opens_it(qtbot, window, tiny_dir):
     )
     window.dropEvent(event)
     qtbot.waitUntil(lambda: window.lm is not None and window.lm.path == tiny_dir, timeout=WAIT_MS)
+
+
+def test_finished_jobs_release_what_their_callable_held(qtbot):
+    """A finished job keeps no reference to its callable's closure (identity, no source needed).
+
+    Before the fix every background job's closure (each holding a whole sentence analysis)
+    stayed alive for the life of the pool.
+    """
+    import gc
+    import weakref
+
+    from ui.widgets.worker import JobRunner
+
+    class Payload:
+        pass
+
+    runner = JobRunner()
+    payload = Payload()
+    gone = weakref.ref(payload)
+    got: list[object] = []
+    runner.submit("analysis", lambda p=payload: type(p).__name__, got.append, got.append)
+    del payload
+    qtbot.waitUntil(lambda: not runner.is_busy(), timeout=WAIT_MS)
+    runner.wait()
+    gc.collect()
+    assert got == ["Payload"]
+    assert gone() is None

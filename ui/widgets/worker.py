@@ -40,16 +40,21 @@ class _Job(QRunnable):
         self.latest_only = latest_only
 
     def run(self) -> None:
+        # The callable is dropped before reporting: the binding keeps every started runnable
+        # (auto-delete off) for the life of its pool, and a callable's closure can hold a whole
+        # sentence analysis (150 MB at 512 tokens on a BERT-base-sized model).
+        fn, self._fn = self._fn, None
         if self.latest_only and not self._runner.is_current(self._channel, self._seq):
             self._runner.relay.finished.emit(self._channel, self._seq, None, "")
             return
         try:
-            result, error = self._fn(), ""
+            result, error = fn(), ""
         except HeadcountError as exc:
             result, error = None, str(exc)
         except Exception as exc:  # a bug: shown in the message bar; the window must survive it
             first = (str(exc).strip().splitlines() or [""])[0]
             result, error = None, f"unexpected error, please report it ({type(exc).__name__}: {first})"
+        del fn
         self._runner.relay.finished.emit(self._channel, self._seq, result, error)
 
 
