@@ -40,6 +40,10 @@ lint: setup
 format: setup
 	$(BIN)/ruff format inspector ui tests bench docs sample_models
 
+screenshots: setup
+	QT_QPA_PLATFORM=offscreen $(BIN)/python docs/make_screenshots.py
+	QT_QPA_PLATFORM=offscreen $(BIN)/python docs/make_compare_screenshots.py
+
 bench: setup
 	$(BIN)/python -m bench.bench_capture
 

@@ -63,8 +63,9 @@ class _Key(QWidget):
         x = 0
         ends = fm.horizontalAdvance(self._low) + fm.horizontalAdvance(self._high) + 22
         # The numbers at both ends are never cut: the sample shrinks first, then the caption.
+        # A few pixels of slack: an elided text needs a little more than its measured advance.
         sample = int(
-            max(min(self.SAMPLE_WIDTH, self.width() - ends - fm.horizontalAdvance(self._caption)), 0)
+            max(min(self.SAMPLE_WIDTH, self.width() - ends - fm.horizontalAdvance(self._caption) - 4), 0)
         )
         sample = max(sample, self.MIN_SAMPLE_WIDTH)
         room = max(self.width() - ends - sample, 20)
