@@ -130,6 +130,10 @@ def test_masked_views_and_explain_page_follow_the_masked_model(qtbot, window, tm
     assert np.abs(core.attention[1:] - full.attention[1:]).max() > 1e-3  # later layers really changed
     np.testing.assert_allclose(page.band.values, core.rollout[0], atol=1e-9)
     assert page.closeup_panel.subtitle.text()  # the close-up still has something to say
+    page.select_head(0, 2)  # a switched-off head: its map is shown, and said to be unused
+    assert "switched off" in page.closeup_panel.subtitle.text()
+    page.select_head(0, 1)
+    assert "switched off" not in page.closeup_panel.subtitle.text()
 
     window.explain_current_sentence()
     explain = window.explain_page

@@ -417,6 +417,8 @@ class SentencePage:
         pieces: np.ndarray | None
         if src == "head":
             pieces, where = a.attention[self.layer, self.head], fmt.head_name(self.layer, self.head)
+            if (self.layer, self.head) in set(a.mask.heads):
+                note = "switched off: its weights are still computed, its output is not used"
         elif src == "layer_mean":
             on = [h for h in range(a.num_heads) if (self.layer, h) not in set(a.mask.heads)]
             pieces = a.attention[self.layer, on].mean(axis=0) if on else None
