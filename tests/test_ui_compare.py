@@ -105,6 +105,9 @@ def test_sentence_page_shows_both_models_and_the_change_of_each_head(qtbot, wind
     assert {(l, h) for l, h, _ in page.grid_b.overlay_wedges(geo)} == {(0, 0), (0, 1), (1, 0), (1, 1)}
     hover = page._summary_b(2, 1)
     assert "has no head at this position" in hover and "closest head of A" in hover
+    # the close-up and the arcs show model A's head, and say so
+    assert page.closeup_panel.subtitle.text().startswith("A \u00b7 ")
+    assert page.arcs_panel.subtitle.text().startswith("A \u00b7 ")
     window.grab()  # paints with the overlay
 
 
@@ -121,6 +124,7 @@ def test_an_exact_copy_shows_no_change(qtbot, window, folders):
     window.close_second_model()
     qtbot.waitUntil(lambda: not window.is_busy(), timeout=WAIT_MS)
     assert window.lm_b is None and not page.second.isVisible() and page.grid.overlay is None
+    assert not page.closeup_panel.subtitle.text().startswith("A \u00b7 ")
 
 
 def test_a_model_with_another_tokenizer_is_refused_in_one_line(qtbot, window, folders):

@@ -204,7 +204,7 @@ def groups_html(report: CorpusReport) -> str:
             f"<b>{fmt.count(len(red.groups), 'near-duplicate group')}</b><ul style='margin:0'>{items}</ul>"
         )
     else:
-        groups = "<b>No near-duplicate group</b>"
+        groups = "<b>No near-duplicate group</b><br>"
     pairs = "".join(
         f"<tr><td>{fmt.head_name(p.layer_a, p.head_a)} \u2013 {fmt.head_name(p.layer_b, p.head_b)}</td>"
         f"<td align=right>&nbsp;{fmt.bits(p.js_divergence)}</td></tr>"
@@ -213,10 +213,10 @@ def groups_html(report: CorpusReport) -> str:
     if red.sampled:
         groups += (
             f"<span>{red.rows_compared} of {red.rows_total} rows sampled: a pair counts only if its divergence "
-            f"+ 2 standard errors (up to {red.largest_standard_error:.3f}) is within the cut</span><br>"
+            f"+ 2 standard errors (up to {fmt.bits(red.largest_standard_error)}) is within the cut</span><br>"
         )
     return (
-        f"{groups}<br><span>every pair in a group within {fmt.bits(red.threshold)} of mean JS divergence</span>"
+        f"{groups}<span>every pair in a group within {fmt.bits(red.threshold)} of mean JS divergence</span>"
         f"<br><br><b>Closest pairs</b> (mean JS divergence)<table cellspacing=1>{pairs}</table>"
     )
 

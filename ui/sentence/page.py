@@ -818,7 +818,9 @@ class SentencePageWidget(QWidget):
         focus = st.focus()
         query = st.query_index()
         self.closeup.set_data(focus.matrix, focus.labels, focus.special, query=query, note=focus.note)
-        self.closeup_panel.set_subtitle(f"{focus.where}" + (f" \u00b7 {focus.note}" if focus.note else ""))
+        # With a second model open, the close-up and the arcs show model A (the mosaics show both).
+        model = "A \u00b7 " if self.pair.active else ""
+        self.closeup_panel.set_subtitle(f"{model}{focus.where}" + (f" \u00b7 {focus.note}" if focus.note else ""))
         self.arcs.set_data(
             focus.matrix,
             focus.labels,
@@ -829,7 +831,7 @@ class SentencePageWidget(QWidget):
             note=focus.note,
         )
         query_text = f"query \u2018{focus.labels[query]}\u2019" if focus.labels else ""
-        self.arcs_panel.set_subtitle(f"{focus.view} \u00b7 {focus.where} \u00b7 {query_text}")
+        self.arcs_panel.set_subtitle(f"{model}{focus.view} \u00b7 {focus.where} \u00b7 {query_text}")
         self.zoom_label.setText(self.closeup.zoom_text())
         QTimer.singleShot(0, self.show_query_arc)
         self.views_updated.emit()
