@@ -820,7 +820,9 @@ class SentencePageWidget(QWidget):
         self.closeup.set_data(focus.matrix, focus.labels, focus.special, query=query, note=focus.note)
         # With a second model open, the close-up and the arcs show model A (the mosaics show both).
         model = "A \u00b7 " if self.pair.active else ""
-        self.closeup_panel.set_subtitle(f"{model}{focus.where}" + (f" \u00b7 {focus.note}" if focus.note else ""))
+        self.closeup_panel.set_subtitle(
+            f"{model}{focus.where}" + (f" \u00b7 {focus.note}" if focus.note else "")
+        )
         self.arcs.set_data(
             focus.matrix,
             focus.labels,
