@@ -33,11 +33,13 @@ from PySide6.QtWidgets import (
     QComboBox,
     QDoubleSpinBox,
     QFileDialog,
+    QFrame,
     QHBoxLayout,
     QHeaderView,
     QLabel,
     QLineEdit,
     QPushButton,
+    QScrollArea,
     QSizePolicy,
     QSpinBox,
     QSplitter,
@@ -463,7 +465,14 @@ class CorpusPage(QWidget):
         group_side.setSpacing(2)
         group_side.addWidget(buddy_label("Near-duplicate &within:", self.threshold, tab))
         group_side.addWidget(self.threshold, 0, Qt.AlignmentFlag.AlignLeft)
-        group_side.addWidget(self.groups, 1)
+        # The groups and the closest pairs scroll when they do not fit (1366 x 768 leaves a few lines).
+        self.groups_scroll = QScrollArea(tab)
+        self.groups_scroll.setWidget(self.groups)
+        self.groups_scroll.setWidgetResizable(True)
+        self.groups_scroll.setFrameShape(QFrame.Shape.NoFrame)
+        self.groups_scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.groups_scroll.setMinimumWidth(190)
+        group_side.addWidget(self.groups_scroll, 1)
         row.addLayout(group_side, 1)
 
         self.plot = PruningPlot(tab)
