@@ -92,3 +92,30 @@ def test_every_family_captures_exact_weights(family_checkpoint):
     with torch.no_grad():
         plain = lm.model(**cap.batch.model_inputs()).logits.numpy()
     np.testing.assert_array_equal(cap.logits, plain)
+
+
+@pytest.mark.parametrize("kind", ["numpy", "torch", "strided", "readonly"])
+def test_all_finite_agrees_with_numpy_isfinite(kind):
+    """The summing shortcut gives exactly ``numpy.isfinite(a).all()`` (reference: NumPy), including
+    a +inf beside a -inf (their sum is NaN) and finite entries whose float32 sum overflows."""
+    from inspector.checkpoint.capture import all_finite
+
+    big = np.finfo(np.float32).max
+    rng = np.random.default_rng(0)
+    cases = [rng.random((3, 4, 5), dtype=np.float32) for _ in range(6)]
+    cases[1][2, 3, 4] = np.nan
+    cases[2][0, 0, 0] = np.inf
+    cases[3][1, 1, 1], cases[3][2, 2, 2] = np.inf, -np.inf
+    cases[4][:] = big  # finite, but the sum overflows
+    cases[5][0, 1, 2] = -np.inf
+    cases.append(np.arange(12).reshape(3, 4))  # integers are always finite
+    for a in cases:
+        expected = bool(np.isfinite(a).all())
+        if kind == "torch":
+            a = torch.from_numpy(a)
+        elif kind == "strided":
+            a = np.repeat(a, 2, axis=-1)[..., ::2]
+        elif kind == "readonly":
+            a = a.copy()
+            a.flags.writeable = False
+        assert all_finite(a) is expected
