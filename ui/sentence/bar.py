@@ -156,6 +156,8 @@ class SentenceBar(QWidget):
         self.mask_note.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.mask_note.setTextFormat(Qt.TextFormat.RichText)
         self.mask_note.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        # Room for two lines: what switching heads off did wraps at laptop widths and was cut at the bottom.
+        self.mask_note.setMinimumHeight(2 * self.mask_note.fontMetrics().lineSpacing() + 2)
         self.heads_row = QHBoxLayout()
         """Row under the prediction: the heads-off controls (added by the page) and what switching heads off did."""
         self.heads_row.setSpacing(4)
@@ -260,12 +262,14 @@ class SentenceBar(QWidget):
         """What switching heads off did ('' = every head on: a hint instead)."""
         if text:
             self.mask_note.setText(html.escape(text))
+            self.mask_note.setToolTip(text)
         else:
             dim = dim_text(self.palette(), 0.75).name()
             self.mask_note.setText(
                 f"<span style='color:{dim}'>all on \u2014 double-click a head in the mosaic (or select it and "
                 "press Space) to switch it off and see what changes</span>"
             )
+            self.mask_note.setToolTip("")
 
     def is_misfire_shown(self) -> bool:
         return "Misfire" in self.verdict.text()
