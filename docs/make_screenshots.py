@@ -298,6 +298,9 @@ def dark_palette():
     }
     for role, colour in roles.items():
         pal.setColor(role, QColor(colour))
+    # A dark desktop theme greys out disabled controls too (setColor above set every group alike).
+    for role in (QPalette.ColorRole.WindowText, QPalette.ColorRole.Text, QPalette.ColorRole.ButtonText):
+        pal.setColor(QPalette.ColorGroup.Disabled, role, QColor("#7a7a7a"))
     return pal
 
 
