@@ -262,6 +262,54 @@ def test_occlusion_equals_the_model_on_the_shortened_sentence(classifier):
     assert len(view.groups[5]) > 1  # "gullholm" is several pieces: all of them are occluded together
 
 
+def test_occlusion_in_several_passes_reports_progress_and_equals_the_model(classifier, monkeypatch):
+    """Reference: transformers' forward on the tokenizer's encoding of the sentence with each word deleted,
+    when the copies go through the model two at a time (long sentences) and each pass is reported."""
+    from inspector.explanation import occlusion
+
+    lm = classifier
+    words = "please cancel my crossing to gullholm".split()
+    batch = capture.encode(lm, [" ".join(words)])
+    view = make_view(batch.tokens[0], batch.special[0], batch.word_ids[0], words=True, drop_special=True)
+    monkeypatch.setattr(occlusion, "OCCLUSION_TOKENS_PER_PASS", 2 * batch.input_ids.shape[1])
+    seen: list[tuple[int, int]] = []
+    occ = occlude_words(lm, batch, view.groups, "remove", on_rows=lambda done, total: seen.append((done, total)))
+    total = 1 + len(words)
+    assert seen == [(min(k, total), total) for k in range(2, total + 2, 2)]
+    for g in range(len(words)):
+        enc = lm.tokenizer(" ".join(words[:g] + words[g + 1 :]), return_tensors="pt")
+        with torch.no_grad():
+            ref = softmax(lm.model(**enc).logits[0].numpy())
+        np.testing.assert_allclose(occ.occluded[g], ref, atol=1e-6)
+
+
+def test_explanation_reports_its_stages_and_stops_when_told(classifier, monkeypatch):
+    """The stages come in order and end with every word occluded; an exception raised by the callback
+    stops the explanation (identity, no source needed)."""
+    from inspector.explanation import occlusion
+    from inspector.explanation.explain import ExplanationStopped
+
+    monkeypatch.setattr(occlusion, "OCCLUSION_TOKENS_PER_PASS", 1)  # one copy per pass
+    steps: list[tuple[str, int, int]] = []
+    ex = explain_sentence(classifier, SENTENCES[0], steps=8, on_step=lambda *a: steps.append(a))
+    n = len(ex.words)
+    assert [s for s, _, _ in steps[:3]] == ["attention gradients", "Integrated Gradients", "occlusion"]
+    assert steps[-1] == ("occlusion", n, n)
+    assert [d for s, d, _ in steps if s == "occlusion"] == sorted(d for s, d, _ in steps if s == "occlusion")
+
+    def stop_in_occlusion(stage: str, done: int, _total: int) -> None:
+        if stage == "occlusion" and done >= 2:
+            raise ExplanationStopped("stopped")
+
+    with pytest.raises(ExplanationStopped):
+        explain_sentence(classifier, SENTENCES[0], steps=8, on_step=stop_in_occlusion)
+    stages: list[str] = []
+    compare_rewording(
+        classifier, SENTENCES[0], "cancel it", steps=8, on_step=lambda stage, *_: stages.append(stage)
+    )
+    assert stages[0] == "original: attention gradients" and stages[-1] == "reworded: occlusion"
+
+
 # ---------------------------------------------------------------------------
 # The explanation and the rewording comparison
 # ---------------------------------------------------------------------------

@@ -379,3 +379,49 @@ def test_explaining_while_the_sentence_page_analyses(qtbot, window, tiny, misfir
     page = window.explain_page
     assert page.state.ready and page.state.explanation.text == TEXT
     check_lanes(page.original.table, explain_sentence(tiny, TEXT, expected=misfire), page.state.label())
+
+
+def test_a_long_explanation_shows_its_progress_and_a_newer_request_or_esc_stops_it(
+    qtbot, window, monkeypatch
+):
+    """While an explanation runs the page says which stage it is in (occlusion counted in words); a newer
+    request stops the older one at its next step, and Esc stops the one running; the views keep the last
+    finished result (identity, no source needed: the real steps are checked in tests/test_explain.py).
+    """
+    import threading
+    import time
+
+    from PySide6.QtCore import Qt
+
+    import ui.explain.page as page_module
+
+    real = page_module.compute_explanation
+    release = threading.Event()
+    finished_steps: list[str] = []
+
+    def slow(lm, request, on_step=None):
+        if request.text == "slow one":
+            for done in range(1, 200):
+                on_step("occlusion", done, 199)  # raises once the request is replaced or stopped
+                release.wait(0.02)
+            finished_steps.append(request.text)
+        return real(lm, request, on_step)
+
+    monkeypatch.setattr(page_module, "compute_explanation", slow)
+    page = window.explain_page
+    window.show_page(page)
+    window.open_explanation("slow one", None, "")
+    qtbot.waitUntil(lambda: "occlusion" in page.busy_note.text(), timeout=WAIT_MS)
+    assert "of 199 words" in page.busy_note.text() and "Esc stops" in page.busy_note.text()
+    started = time.perf_counter()
+    explain_and_wait(qtbot, window, TEXT, None)  # replaces the slow one, which stops at its next step
+    assert time.perf_counter() - started < 3.0  # not the 4 s the slow one would take to finish
+    assert finished_steps == [] and page.state.result.request.text == TEXT
+    assert page.busy_note.text() == ""
+
+    window.open_explanation("slow one", None, "")
+    qtbot.waitUntil(lambda: "occlusion" in page.busy_note.text(), timeout=WAIT_MS)
+    qtbot.keyClick(page.entry, Qt.Key.Key_Escape)
+    qtbot.waitUntil(lambda: not window.runner.is_busy("explain"), timeout=WAIT_MS)
+    assert finished_steps == [] and page.state.result.request.text == TEXT  # the views kept the last result
+    assert page.busy_note.text() == ""

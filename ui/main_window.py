@@ -83,6 +83,7 @@ SHORTCUTS_HELP = """<table cellspacing=4>
 <tr><td nowrap><b>Ctrl+Shift+E</b></td><td>Export the one-page figure sheet (PDF)</td></tr>
 <tr><td nowrap><b>Ctrl+Shift+X</b></td><td>Explain the sentence: what pushed it toward each label, and rewordings</td></tr>
 <tr><td nowrap><b>Ctrl+Return</b></td><td>On the Explain page: explain again (and compare the rewording)</td></tr>
+<tr><td nowrap><b>Esc</b></td><td>On the Explain page: stop the explanation being computed</td></tr>
 <tr><td nowrap><b>Ctrl+Shift+K</b></td><td>Corpus page: a whole evaluation set (Enter on a misfire: sentence view; Ctrl+Enter: explain)</td></tr>
 <tr><td nowrap><b>Ctrl+E</b> (Corpus page)</td><td>Export the focused view: confusion matrix, misfires, importance, similarity or pruning curve</td></tr>
 <tr><td nowrap><b>Ctrl+Shift+R</b></td><td>On the Corpus page: export the run folder (the corpus command's files)</td></tr>

@@ -4,13 +4,15 @@ from __future__ import annotations
 
 import argparse
 import sys
+from collections.abc import Callable
 from pathlib import Path
-from typing import TYPE_CHECKING, TextIO
+from typing import TYPE_CHECKING, NamedTuple, TextIO
 
 import numpy as np
 
 from inspector import formatting as fmt
 from inspector.cli.common import (
+    ProgressBar,
     add_mask_option,
     add_model_command,
     load_mask,
@@ -279,6 +281,29 @@ def _whole(text: str) -> int:
         raise HeadcountError(f"--steps takes a whole number or 'auto', not '{text}'") from None
 
 
+LONG_SENTENCE_WORDS = 32
+"""From this many words on, the occlusion pass (one forward pass per word) shows a bar on stderr."""
+
+
+class _WordsDone(NamedTuple):
+    """The occlusion stage's progress in the shape :meth:`ProgressBar.step` reads."""
+
+    phase: str
+    done: int
+    total: int
+    unit: str = "word"
+
+
+def _occlusion_bar(bar: ProgressBar) -> Callable[[str, int, int], None]:
+    """An ``on_step`` that shows the occlusion of a long sentence (or of each side of a rewording) on ``bar``."""
+
+    def on_step(stage: str, done: int, total: int) -> None:
+        if stage.endswith("occlusion") and total >= LONG_SENTENCE_WORDS:
+            bar.step(_WordsDone(stage, done, total))
+
+    return on_step
+
+
 def cmd_explain(args: argparse.Namespace) -> int:
     from inspector.checkpoint.tokens import text_problem
     from inspector.explanation.explain import explain_sentence, require_classifier
@@ -307,13 +332,21 @@ def cmd_explain(args: argparse.Namespace) -> int:
         mask=load_mask(args, lm),
     )
     comparison = None
-    if args.compare is not None:
-        comparison = compare_rewording(
-            lm, args.text, args.compare, expected=args.expected, metric=args.metric, top=args.top, **options
-        )
-        explanation = comparison.original
-    else:
-        explanation = explain_sentence(lm, args.text, expected=args.expected, **options)
+    with ProgressBar(enabled=True) as bar:
+        options["on_step"] = _occlusion_bar(bar)
+        if args.compare is not None:
+            comparison = compare_rewording(
+                lm,
+                args.text,
+                args.compare,
+                expected=args.expected,
+                metric=args.metric,
+                top=args.top,
+                **options,
+            )
+            explanation = comparison.original
+        else:
+            explanation = explain_sentence(lm, args.text, expected=args.expected, **options)
     written = []
     if args.figure:
         from inspector.figures.explanation import save_explanation_figure

@@ -14,7 +14,7 @@ one :class:`SentenceExplanation`.
 from __future__ import annotations
 
 import time
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -42,6 +42,13 @@ from inspector.explanation.occlusion import OcclusionMode, occlude_words
 from inspector.measures.analysis import Prediction, analyze_sentence
 from inspector.measures.metrics import HeadMetrics
 from inspector.measures.rollout import attention_rollout
+
+StepReport = Callable[[str, int, int], None]
+"""``on_step(stage, done, total)``: where an explanation stands; it may raise to stop the work."""
+
+
+class ExplanationStopped(HeadcountError):
+    """Raised by an ``on_step`` callback to stop an explanation that is no longer wanted."""
 
 
 @dataclass
@@ -307,6 +314,7 @@ def explain_sentence(
     baseline: Baseline = "pad",
     rule: Rule = DEFAULT_RULE,
     mask: HeadMask | None = None,
+    on_step: StepReport | None = None,
 ) -> SentenceExplanation:
     """Explain one sentence's prediction for the predicted and the expected label.
 
@@ -330,6 +338,10 @@ def explain_sentence(
     rule : {'clenshaw-curtis', 'gauss-legendre', 'trapezoid'}, default 'clenshaw-curtis'
     mask : HeadMask, optional
         Heads to switch off: every piece of evidence is then the masked model's.
+    on_step : callable(stage, done, total), optional
+        Told where the work stands: ``("attention gradients", 0, 1)``, ``("Integrated
+        Gradients", 0, 1)``, then ``("occlusion", words done, words)`` after each pass of
+        occluded copies. An exception it raises stops the explanation (a newer request).
 
     Returns
     -------
@@ -361,15 +373,26 @@ def explain_sentence(
     vw_rollout = value_weighted_rollout(analysis.layer_value_weighted)
     vw_words = merge_to_words(vw_rollout[CLASSIFICATION_POSITION], groups)
     watch.lap("analysis")
+    report = on_step or (lambda _stage, _done, _total: None)
     with masked(lm, mask):
+        report("attention gradients", 0, 1)
         grads = attention_gradients(lm, batch, indices)
         watch.lap("attention_gradients")
         contrasts = [(0, names.index(expected))] if expected and expected != pred.label else []
+        report("Integrated Gradients", 0, 1)
         integral, used = integrated_gradients(
             lm, batch, indices, steps=steps, baseline=baseline, rule=rule, contrasts=contrasts
         )
         watch.lap("integrated_gradients")
-        occ = occlude_words(lm, batch, groups, occlusion)
+        words = len(groups)
+        report("occlusion", 0, words)
+        occ = occlude_words(
+            lm,
+            batch,
+            groups,
+            occlusion,
+            on_rows=lambda done, _total: report("occlusion", max(done - 1, 0), words),
+        )
         watch.lap("occlusion")
     require_finite(
         "gradients, attributions or occluded probabilities",

@@ -3,7 +3,7 @@ drops without each word."""
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Literal
 
@@ -19,7 +19,13 @@ from inspector.measures.analysis import softmax
 OcclusionMode = Literal["remove", "mask"]
 
 OCCLUSION_ROWS_PER_PASS = 256
-"""Occluded copies of a sentence evaluated per forward pass."""
+"""Most occluded copies of a sentence evaluated per forward pass."""
+OCCLUSION_TOKENS_PER_PASS = 4096
+"""Tokens per forward pass (copies x length): long sentences go in several passes, so the
+progress of a long explanation is reported and it can be stopped between passes."""
+
+RowsReport = Callable[[int, int], None]
+"""``on_rows(done, total)``: occluded copies evaluated so far; it may raise to stop the work."""
 
 
 def log_odds(logits: np.ndarray, label: int) -> np.ndarray:
@@ -150,7 +156,11 @@ def _replacement(lm: LoadedModel) -> tuple[int, str]:
 
 
 def occlude_words(
-    lm: LoadedModel, batch: Batch, groups: Sequence[Sequence[int]], mode: OcclusionMode = "remove"
+    lm: LoadedModel,
+    batch: Batch,
+    groups: Sequence[Sequence[int]],
+    mode: OcclusionMode = "remove",
+    on_rows: RowsReport | None = None,
 ) -> Occlusion:
     """Leave-one-word-out occlusion of one sentence, all copies batched.
 
@@ -165,6 +175,9 @@ def occlude_words(
     mode : {'remove', 'mask'}, default 'remove'
         Remove the word's pieces, or replace each by the mask token (the
         unknown token when the tokenizer has no mask token).
+    on_rows : callable(done, total), optional
+        Called after each forward pass with the copies evaluated so far (the intact
+        sentence counts as one); an exception it raises stops the work.
 
     Returns
     -------
@@ -191,12 +204,15 @@ def occlude_words(
         replacement_id=replacement_id,
         pad_id=pad_id,
     )
-    total = rows["input_ids"].shape[0]
+    total, length = rows["input_ids"].shape
+    per_pass = max(1, min(OCCLUSION_ROWS_PER_PASS, OCCLUSION_TOKENS_PER_PASS // max(1, length)))
     logits = []
     with torch.no_grad():
-        for start in range(0, total, OCCLUSION_ROWS_PER_PASS):
-            part = {k: v[start : start + OCCLUSION_ROWS_PER_PASS] for k, v in rows.items()}
+        for start in range(0, total, per_pass):
+            part = {k: v[start : start + per_pass] for k, v in rows.items()}
             logits.append(lm.model(**part).logits)
+            if on_rows is not None:
+                on_rows(min(start + per_pass, total), total)
     z = torch.cat(logits).numpy().astype(np.float64)
     probs = softmax(z)
     return Occlusion(

@@ -14,6 +14,7 @@ from inspector.errors import HeadcountError
 from inspector.explanation.choices import DEFAULT_RULE
 from inspector.explanation.explain import (
     SentenceExplanation,
+    StepReport,
     explain_sentence,
     label_index,
     require_classifier,
@@ -114,6 +115,7 @@ def compare_rewording(
     baseline: Baseline = "pad",
     rule: Rule = DEFAULT_RULE,
     mask: HeadMask | None = None,
+    on_step: StepReport | None = None,
 ) -> RewordingComparison:
     """Explain ``original`` and ``edited`` for the same labels and compare them.
 
@@ -128,8 +130,10 @@ def compare_rewording(
         Per-head metric to compare (see :data:`inspector.measures.metrics.METRIC_NAMES`).
     top : int, default 5
         How many most-changed heads to list.
-    steps, occlusion, baseline, rule, mask
-        Passed to :func:`inspector.explanation.explain.explain_sentence`.
+    steps, occlusion, baseline, rule, mask, on_step
+        Passed to :func:`inspector.explanation.explain.explain_sentence` (``on_step`` sees
+        the stages of the original sentence, then those of the edited one, each stage
+        name prefixed with ``original:`` or ``reworded:``).
 
     Returns
     -------
@@ -155,8 +159,18 @@ def compare_rewording(
     preds = [make_prediction(lm.labels, first.logits[b]).label for b in range(2)]
     labels = list(dict.fromkeys([*preds, *([expected] if expected else [])]))
     options = dict(steps=steps, occlusion=occlusion, baseline=baseline, rule=rule, mask=mask)
-    a = explain_sentence(lm, original, expected=expected, extra_labels=labels, **options)
-    b = explain_sentence(lm, edited, expected=expected, extra_labels=labels, **options)
+
+    def tagged(side: str) -> StepReport | None:
+        if on_step is None:
+            return None
+        return lambda stage, done, total: on_step(f"{side}: {stage}", done, total)
+
+    a = explain_sentence(
+        lm, original, expected=expected, extra_labels=labels, on_step=tagged("original"), **options
+    )
+    b = explain_sentence(
+        lm, edited, expected=expected, extra_labels=labels, on_step=tagged("reworded"), **options
+    )
     before = a.head_metrics.get(metric)
     after = b.head_metrics.get(metric)
     return RewordingComparison(

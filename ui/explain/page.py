@@ -13,6 +13,7 @@ what the page shows is derived by :class:`ui.explain.state.ExplainState`.
 from __future__ import annotations
 
 import html
+import threading
 from collections.abc import Callable
 
 from PySide6.QtCore import QEvent, Qt, Signal
@@ -34,7 +35,7 @@ from inspector.checkpoint.loader import LoadedModel
 from inspector.checkpoint.masks import HeadMask
 from inspector.errors import HeadcountError
 from inspector.explanation.choices import IG_TOLERANCE
-from inspector.explanation.explain import CAUTION, require_classifier
+from inspector.explanation.explain import CAUTION, ExplanationStopped, require_classifier
 from inspector.explanation.gradients import BASELINES
 from inspector.explanation.occlusion import OCCLUSION_MODES
 from inspector.figures.explanation import explanation_pages
@@ -93,6 +94,8 @@ class ExplainPage(QWidget):
     """A new result (or a change of label or metric) has been pushed into every view."""
     status = Signal(str)
     error = Signal(str)
+    progress = Signal(str, int, int)
+    """stage, done, total of the explanation being computed (emitted from the worker thread)."""
 
     def __init__(
         self,
@@ -112,6 +115,8 @@ class ExplainPage(QWidget):
         """The expected label last asked for (kept while no model, or one without that label, is open)."""
         self.mask = HeadMask()
         """Heads switched off on the sentence page: the explanation is the masked model's."""
+        self._stop_job = threading.Event()
+        """Set to stop the explanation being computed (a newer request, or Esc)."""
 
         request = self._request_box()
         self.original = SentenceSide("Original sentence", self)
@@ -140,6 +145,10 @@ class ExplainPage(QWidget):
         run = QShortcut(QKeySequence("Ctrl+Return"), self)
         run.setContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
         run.activated.connect(self.run)
+        stop = QShortcut(QKeySequence("Esc"), self)
+        stop.setContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
+        stop.activated.connect(self.stop)
+        self.progress.connect(self._show_progress)
         runner.busy_changed.connect(self._busy_changed)
         self.clear("No model open")
 
@@ -373,9 +382,19 @@ class ExplainPage(QWidget):
             self.clear("Type a sentence to explain, then press Enter")
             return
 
+        self._stop_job.set()  # an older explanation stops at its next step
+        stop = self._stop_job = threading.Event()
+
+        def on_step(stage: str, done: int, total: int) -> None:
+            if stop.is_set():
+                raise ExplanationStopped("stopped: a newer request replaced it")
+            self.progress.emit(stage, done, total)
+
         def job() -> ExplainResult:
             with MODEL_LOCK:
-                return compute_explanation(lm, request)
+                if stop.is_set():  # replaced while it waited for the model
+                    raise ExplanationStopped("stopped: a newer request replaced it")
+                return compute_explanation(lm, request, on_step)
 
         self._runner.submit(
             CHANNEL,
@@ -411,9 +430,22 @@ class ExplainPage(QWidget):
         self.clear(f"Could not explain the sentence: {text}")
         self.error.emit(f"Could not explain the sentence: {text}")
 
+    def stop(self) -> None:
+        """Stop the explanation being computed (Esc); the views keep what they showed."""
+        if self._runner.is_busy(CHANNEL):
+            self._stop_job.set()
+            self._runner.cancel(CHANNEL)
+            self.status.emit("Explanation stopped")
+
+    def _show_progress(self, stage: str, done: int, total: int) -> None:
+        if not self._runner.is_busy(CHANNEL):
+            return  # a late report of a job that has ended
+        step = f"{stage} {done} of {count(total, 'word')}" if total > 1 else stage
+        self.busy_note.setText(f"Explaining: {step}\u2026 (Esc stops)")
+
     def _busy_changed(self, channel: str, busy: bool) -> None:
         if channel == CHANNEL:
-            self.busy_note.setText("Explaining\u2026" if self._runner.is_busy(CHANNEL) else "")
+            self.busy_note.setText("Explaining\u2026 (Esc stops)" if self._runner.is_busy(CHANNEL) else "")
 
     # -- changes from the user ---------------------------------------------------------------------
     def set_role(self, role: str) -> None:

@@ -25,6 +25,7 @@ from inspector.explanation.explain import (
     ContrastEvidence,
     LabelEvidence,
     SentenceExplanation,
+    StepReport,
     explain_sentence,
 )
 from inspector.explanation.faithfulness import AGREEMENT_THRESHOLD, METHOD_LABELS
@@ -130,7 +131,9 @@ class ExplainResult:
     comparison: RewordingComparison | None = None
 
 
-def compute_explanation(lm: LoadedModel, request: ExplainRequest) -> ExplainResult:
+def compute_explanation(
+    lm: LoadedModel, request: ExplainRequest, on_step: StepReport | None = None
+) -> ExplainResult:
     """Run a request on the calling (worker) thread: the same calls, with the same options, as the CLI.
 
     One torch intra-op thread, as for the sentence page's per-keystroke analysis:
@@ -146,10 +149,11 @@ def compute_explanation(lm: LoadedModel, request: ExplainRequest) -> ExplainResu
             expected=request.expected,
             metric=request.metric,
             top=request.top,
+            on_step=on_step,
             **request.options(),
         )
         return ExplainResult(request, cmp.original, cmp)
-    ex = explain_sentence(lm, request.text, expected=request.expected, **request.options())
+    ex = explain_sentence(lm, request.text, expected=request.expected, on_step=on_step, **request.options())
     return ExplainResult(request, ex)
 
 
