@@ -273,7 +273,9 @@ def test_occlusion_in_several_passes_reports_progress_and_equals_the_model(class
     view = make_view(batch.tokens[0], batch.special[0], batch.word_ids[0], words=True, drop_special=True)
     monkeypatch.setattr(occlusion, "OCCLUSION_TOKENS_PER_PASS", 2 * batch.input_ids.shape[1])
     seen: list[tuple[int, int]] = []
-    occ = occlude_words(lm, batch, view.groups, "remove", on_rows=lambda done, total: seen.append((done, total)))
+    occ = occlude_words(
+        lm, batch, view.groups, "remove", on_rows=lambda done, total: seen.append((done, total))
+    )
     total = 1 + len(words)
     assert seen == [(min(k, total), total) for k in range(2, total + 2, 2)]
     for g in range(len(words)):
