@@ -306,8 +306,8 @@ def _occlusion_bar(bar: ProgressBar) -> Callable[[str, int, int], None]:
 
 def cmd_explain(args: argparse.Namespace) -> int:
     from inspector.checkpoint.tokens import text_problem
-    from inspector.explanation.explain import explain_sentence, require_classifier
-    from inspector.explanation.rewording import compare_rewording
+    from inspector.explanation.explain import require_classifier
+    from inspector.explanation.rewording import explain_with_rewording
     from inspector.figures.files import check_output_file
 
     for option, text in (("--text", args.text), ("--compare", args.compare)):
@@ -331,22 +331,17 @@ def cmd_explain(args: argparse.Namespace) -> int:
         rule=args.rule,
         mask=load_mask(args, lm),
     )
-    comparison = None
     with ProgressBar(enabled=True) as bar:
-        options["on_step"] = _occlusion_bar(bar)
-        if args.compare is not None:
-            comparison = compare_rewording(
-                lm,
-                args.text,
-                args.compare,
-                expected=args.expected,
-                metric=args.metric,
-                top=args.top,
-                **options,
-            )
-            explanation = comparison.original
-        else:
-            explanation = explain_sentence(lm, args.text, expected=args.expected, **options)
+        explanation, comparison = explain_with_rewording(
+            lm,
+            args.text,
+            args.compare,
+            expected=args.expected,
+            metric=args.metric,
+            top=args.top,
+            on_step=_occlusion_bar(bar),
+            **options,
+        )
     written = []
     if args.figure:
         from inspector.figures.explanation import save_explanation_figure

@@ -183,3 +183,38 @@ def compare_rewording(
         top_heads=heads_that_changed(before, after, top),
         word_changes=word_changes(a.words, b.words),
     )
+
+
+def explain_with_rewording(
+    lm: LoadedModel,
+    text: str,
+    edited: str | None = None,
+    *,
+    expected: str | None = None,
+    metric: str = "entropy",
+    top: int = 5,
+    **options,
+) -> tuple[SentenceExplanation, RewordingComparison | None]:
+    """Explain ``text``, beside a rewording of it when ``edited`` is given (the CLI's and the window's call).
+
+    Parameters
+    ----------
+    lm : LoadedModel
+    text : str
+    edited : str, optional
+        A rewording to compare with: :func:`compare_rewording` runs; None explains ``text`` alone.
+    expected, metric, top
+        As in :func:`compare_rewording` (``metric`` and ``top`` matter only with a rewording).
+    **options
+        ``steps``, ``occlusion``, ``baseline``, ``rule``, ``mask``, ``on_step``, passed to
+        :func:`inspector.explanation.explain.explain_sentence`.
+
+    Returns
+    -------
+    (SentenceExplanation, RewordingComparison or None)
+        The explanation of ``text`` (the comparison's ``original`` when there is one) and the comparison.
+    """
+    if edited is None:
+        return explain_sentence(lm, text, expected=expected, **options), None
+    comparison = compare_rewording(lm, text, edited, expected=expected, metric=metric, top=top, **options)
+    return comparison.original, comparison

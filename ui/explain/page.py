@@ -392,8 +392,7 @@ class ExplainPage(QWidget):
 
         def job() -> ExplainResult:
             with MODEL_LOCK:
-                if stop.is_set():  # replaced while it waited for the model
-                    raise ExplanationStopped("stopped: a newer request replaced it")
+                on_step("analysis", 0, 1)  # stops here if it was replaced while it waited for the model
                 return compute_explanation(lm, request, on_step)
 
         self._runner.submit(

@@ -26,13 +26,12 @@ from inspector.explanation.explain import (
     LabelEvidence,
     SentenceExplanation,
     StepReport,
-    explain_sentence,
 )
 from inspector.explanation.faithfulness import AGREEMENT_THRESHOLD, METHOD_LABELS
 from inspector.explanation.rewording import (
     HeadChange,
     RewordingComparison,
-    compare_rewording,
+    explain_with_rewording,
     heads_that_changed,
 )
 from inspector.threads import INTERACTIVE_THREADS, set_torch_threads
@@ -115,7 +114,7 @@ class ExplainRequest:
         return bool(self.edited.strip())
 
     def options(self) -> dict:
-        """Keyword arguments shared by ``explain_sentence`` and ``compare_rewording``."""
+        """Keyword arguments passed on to ``explain_sentence`` (and ``compare_rewording``)."""
         return dict(
             steps=self.steps, occlusion=self.occlusion, baseline=self.baseline, rule=self.rule, mask=self.mask
         )
@@ -141,20 +140,17 @@ def compute_explanation(
     GUI thread down (``torch.set_num_threads`` acts on the calling thread).
     """
     set_torch_threads(INTERACTIVE_THREADS)
-    if request.has_edit:
-        cmp = compare_rewording(
-            lm,
-            request.text,
-            request.edited,
-            expected=request.expected,
-            metric=request.metric,
-            top=request.top,
-            on_step=on_step,
-            **request.options(),
-        )
-        return ExplainResult(request, cmp.original, cmp)
-    ex = explain_sentence(lm, request.text, expected=request.expected, on_step=on_step, **request.options())
-    return ExplainResult(request, ex)
+    explanation, comparison = explain_with_rewording(
+        lm,
+        request.text,
+        request.edited if request.has_edit else None,
+        expected=request.expected,
+        metric=request.metric,
+        top=request.top,
+        on_step=on_step,
+        **request.options(),
+    )
+    return ExplainResult(request, explanation, comparison)
 
 
 def with_metric(cmp: RewordingComparison, metric: str, top: int = TOP_HEADS) -> RewordingComparison:
